@@ -1,0 +1,3 @@
+from condhint.cli import main
+
+raise SystemExit(main())

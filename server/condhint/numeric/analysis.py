@@ -1,0 +1,423 @@
+"""Per-site analysis: condition number κ, rounding amplification, measured loss, category.
+
+binary64 is screened on all samples; sites that look suspicious are re-evaluated on a subset of samples in
+mpmath (with a precision check), which gives the measured loss and exact κ. Results refer to nodes by
+their index in topological order, so they can be cached by structure and reused for equal expressions.
+"""
+from __future__ import annotations
+
+import math
+import zlib
+from dataclasses import dataclass, field
+from typing import Any
+
+import mpmath
+import numpy as np
+
+from condhint.config import Config
+from condhint.expr import CONST, INPUT, Node, const_rounds, topological
+from condhint.numeric.backends import F64_BACKEND, MP_BACKEND
+from condhint.numeric.evaluate import Deadline, differentiable, forward, reverse
+from condhint.numeric.functions import FUNCTIONS
+from condhint.numeric.sampling import sample
+from condhint.site import InputRange, Interval, Site
+
+
+@dataclass
+class Point:
+    """Figures at one sample, for tables and plots."""
+
+    at: dict[str, float]
+    kappa: float
+    predicted: float
+    measured: float | None
+    value: float | None
+
+
+@dataclass
+class Analysis:
+    names: list[str]
+    bounds: dict[str, tuple[float, float]]
+    sources: dict[str, str]
+    n_samples: int
+    refined: bool
+    kappa: float  # worst over the valid samples
+    kappa_median: float
+    kappa_at: dict[str, float]
+    kappa_i: dict[str, float]
+    predicted: float  # worst predicted digits lost
+    measured: float | None  # worst measured digits lost (refined sites only)
+    category: str | None = None
+    digits: float | None = None  # the figure the severity comes from
+    worst_at: dict[str, float] = field(default_factory=dict)
+    worst_predicted: float | None = None
+    worst_measured: float | None = None
+    worst_kappa: float | None = None
+    fraction: float | None = None
+    culprit: int | None = None  # index of the operation where digits are lost
+    sources_of_error: list[int] = field(default_factory=list)  # operands of the culprit carrying error
+    dominant: int | None = None  # the rounding that matters most
+    gain: float | None = None
+    result_uncertainty: float | None = None
+    undefined_fraction: float = 0.0
+    declared: bool = False
+    points: list[Point] = field(default_factory=list)
+    note: str = ""
+
+
+def _rounds(node: Node) -> bool:
+    if node.kind == CONST:
+        return node.exact is not None and node.value is not None and math.isfinite(node.value) and const_rounds(
+            node.exact, node.value)
+    fn = FUNCTIONS.get(node.kind)
+    if fn is None or not fn.rounds or node.is_int:
+        return False
+    if node.kind in ("mul", "div"):  # scaling by a power of two is exact
+        other = node.args[1] if node.kind == "div" else next((a for a in node.args if a.kind == CONST), None)
+        if other is not None and other.kind == CONST and other.value and math.isfinite(other.value):
+            m, _ = math.frexp(abs(other.value))
+            if m == 0.5 and not _rounds(other):
+                return False
+    return True
+
+
+def _ratio(num: Any, den: Any, backend: Any) -> np.ndarray:
+    with np.errstate(all="ignore"):
+        return np.abs(backend.to_float(num / den)) if backend is MP_BACKEND else np.abs(num / den)
+
+
+def _safe_div(num: Any, den: Any, backend: Any) -> np.ndarray:
+    if backend is MP_BACKEND:
+        out = []
+        for a, b in zip(num, den):
+            try:
+                out.append(abs(float(a / b)) if b != 0 else math.inf)
+            except (ZeroDivisionError, OverflowError, ValueError):
+                out.append(math.inf)
+        return np.array(out, dtype=float)
+    with np.errstate(all="ignore"):
+        return np.abs(num / den)
+
+
+def _metrics(nodes: list[Node], vals: dict[int, Any], adj: dict[int, Any], names: list[str],
+             rounding: list[int], backend: Any) -> tuple[np.ndarray, dict[str, np.ndarray], np.ndarray, dict[int, np.ndarray]]:
+    """κ, κᵢ, rounding amplification A and its terms, per sample."""
+    root = nodes[-1]
+    f = vals[id(root)]
+    by_name = {n.name: n for n in nodes if n.kind == INPUT}
+    kappa_i = {}
+    for name in names:
+        node = by_name[name]
+        a = adj.get(id(node))
+        kappa_i[name] = np.zeros(len(f)) if a is None else _safe_div(vals[id(node)] * a, f, backend)
+    kappa = sum(kappa_i.values()) if kappa_i else np.zeros(len(f))
+    terms = {}
+    for k in rounding:
+        node = nodes[k]
+        a = adj.get(id(node))
+        terms[k] = np.zeros(len(f)) if a is None else _safe_div(vals[id(node)] * a, f, backend)
+    amp = sum(terms.values()) if terms else np.zeros(len(f))
+    return np.asarray(kappa, dtype=float), kappa_i, np.asarray(amp, dtype=float), terms
+
+
+def _digits(x: np.ndarray, total: float) -> np.ndarray:
+    with np.errstate(all="ignore", invalid="ignore"):
+        d = np.log10(np.maximum(np.nan_to_num(x, nan=np.inf, posinf=np.inf), 1.0))
+    return np.minimum(d, total)
+
+
+def _reference(nodes: list[Node], cols: dict[str, np.ndarray], m: int, deadline: Deadline | None
+               ) -> tuple[dict[int, Any], int]:
+    """mpmath values at a precision that makes the result stable (checked by re-evaluating higher)."""
+    root = nodes[-1]
+    dps = 40
+    prev = None
+    while True:
+        with mpmath.workdps(dps):
+            vals = forward(nodes, cols, MP_BACKEND, m, deadline)
+            cur = vals[id(root)]
+            if prev is not None:
+                with mpmath.workdps(dps):
+                    ok = all(_agree(a, b) for a, b in zip(prev, cur))
+                if ok or dps >= 1280:
+                    return vals, dps
+        prev = cur
+        dps = dps + 40 if dps < 80 else dps * 2
+
+
+def _agree(a: Any, b: Any) -> bool:
+    if mpmath.isnan(a) or mpmath.isnan(b):
+        return bool(mpmath.isnan(a) and mpmath.isnan(b))
+    if mpmath.isinf(a) or mpmath.isinf(b):
+        return a == b
+    if b == 0:
+        return a == 0
+    return abs((a - b) / b) < mpmath.mpf(10) ** -22
+
+
+def _subset(scores: list[np.ndarray], n: int, k: int) -> np.ndarray:
+    picks: list[int] = [0, n - 1] if n > 1 else [0]
+    quota = max(1, k // (2 * len(scores))) if scores else 0
+    for s in scores:
+        s = np.nan_to_num(s, nan=np.inf)
+        picks += list(np.argsort(-s, kind="stable")[:quota])
+    rest = k - len(set(picks))
+    if rest > 0:
+        picks += list(np.linspace(0, n - 1, rest).astype(int))
+    return np.array(sorted(set(int(p) for p in picks)))[: max(k, 2)]
+
+
+def site_ranges(site: Site, names: list[str]) -> dict[str, InputRange]:
+    return {n: site.ranges.get(n) or InputRange(Interval(), "default") for n in names}
+
+
+def analyse(site: Site, cfg: Config, root: Node | None = None, deadline: Deadline | None = None,
+            keep_points: bool = False) -> Analysis:
+    """Analyse the site's expression (or one of its subexpressions, `root`) over its input ranges."""
+    root = root or site.root
+    nodes = topological(root)
+    names = sorted({n.name for n in nodes if n.kind == INPUT})  # type: ignore[misc]
+    ranges = site_ranges(site, names)
+    u = cfg.unit_roundoff
+    total = -math.log10(u)
+    th = cfg.thresholds
+    seed = zlib.crc32(root.key().encode())
+    cols, bounds = sample(ranges, names, cfg.samples, seed, cfg.default_range)
+    n = len(next(iter(cols.values()))) if cols else 1
+    declared = any(r.source != "default" for r in ranges.values())
+
+    # Guards and branches on computed values: keep the samples where they hold.
+    for flt in site.filters:
+        cnodes = topological(flt.condition)
+        cv = forward(cnodes, cols, F64_BACKEND, n)[id(flt.condition)]
+        keep = np.asarray(cv, dtype=bool) == flt.holds
+        if keep.any():
+            cols = {k: v[keep] for k, v in cols.items()}
+            n = int(keep.sum())
+
+    rounding = [i for i, node in enumerate(nodes) if _rounds(node)]
+    v64 = forward(nodes, cols, F64_BACKEND, n, deadline)
+    r64 = np.asarray(v64[id(root)], dtype=float)
+    adj64, _ = reverse(nodes, v64, F64_BACKEND, deadline)
+    k64, ki64, a64, _ = _metrics(nodes, v64, adj64, names, rounding, F64_BACKEND)
+    fin64 = np.isfinite(r64)
+    inner_bad = np.zeros(n, dtype=bool)
+    for node in nodes:
+        if differentiable(node):
+            v = np.asarray(v64[id(node)], dtype=float)
+            if v.dtype == float:
+                inner_bad |= ~np.isfinite(v)
+    pred64 = _digits(a64, total)
+    logk64 = _digits(k64, 99.0)
+    sources = {k: ranges[k].source for k in names}
+
+    suspicious = bool(np.any(pred64[fin64] >= th.info - 0.5)) or bool(np.any(logk64[fin64] >= th.info - 0.5)) or bool(
+        np.any(inner_bad))
+    base = dict(names=names, bounds=bounds, sources=sources, n_samples=n, declared=declared)
+    if not suspicious:
+        valid = fin64 & (r64 != 0)
+        return _summary(base, cols, valid, k64, ki64, pred64, None, r64, keep_points, refined=False,
+                        ranges=ranges)
+
+    # Reference evaluation on a subset: worst predicted, worst κ, non-finite ones, and a spread.
+    idx = _subset([pred64, logk64, inner_bad.astype(float) * 99 + (~fin64) * 99], n, cfg.reference_samples)
+    sub = {k: v[idx] for k, v in cols.items()}
+    m = len(idx)
+    vmp, dps = _reference(nodes, sub, m, deadline)
+    with mpmath.workdps(dps):
+        adjmp, partials = reverse(nodes, vmp, MP_BACKEND, deadline)
+        kmp, kimp, amp, terms = _metrics(nodes, vmp, adjmp, names, rounding, MP_BACKEND)
+        fmp = vmp[id(root)]
+        ffl = MP_BACKEND.to_float(fmp)
+        r = r64[idx]
+        err = np.array([_relerr(float(a), b) for a, b in zip(r, fmp)], dtype=float)
+        steps = _step_conditions(nodes, vmp, partials)
+    defined = np.array([not mpmath.isnan(v) for v in fmp], dtype=bool)
+    nonzero = np.array([v != 0 for v in fmp], dtype=bool)
+    normal = defined & np.isfinite(ffl) & nonzero & (np.abs(ffl) >= 2.2250738585072014e-308)
+    meas = _digits(err / u, total)
+    predmp = _digits(amp, total)
+    logk = _digits(kmp, 99.0)
+    res = _summary(base, sub, normal & np.isfinite(r), kmp, kimp, predmp, meas, r, keep_points, refined=True,
+                   ranges=ranges)
+    res.undefined_fraction = float(np.mean(~defined)) if m else 0.0
+
+    sub64 = {id(node): np.asarray(v64[id(node)], dtype=float)[idx] for node in nodes if differentiable(node)}
+    # 1. Overflow / underflow: the true result is ordinary but an intermediate is not.
+    bad = normal & ~np.isfinite(r)
+    und = normal & (r == 0)
+    for kind, mask in (("overflow", bad | und),):
+        if mask.any():
+            w = int(np.flatnonzero(mask)[0])
+            culprit = _first_nonfinite(nodes, sub64, w)
+            if culprit is not None:
+                res.category, res.digits = kind, total
+                res.culprit = culprit
+                _worst(res, sub, w, predmp, meas, kmp)
+                res.fraction = float(np.mean(inner_bad & np.isfinite(k64) | ~fin64)) if n else 0.0
+                return res
+    # 2. Domain: rounding leaves a function's domain where the exact formula is defined.
+    nan64 = normal & np.isnan(r)
+    if nan64.any():
+        w = int(np.flatnonzero(nan64)[0])
+        culprit = _first_nan(nodes, sub64, w)
+        res.category, res.digits, res.culprit = "domain", total, culprit
+        _worst(res, sub, w, predmp, meas, kmp)
+        res.fraction = float(np.mean(np.isnan(r64)))
+        return res
+    if declared and res.undefined_fraction > 0 and defined.any():
+        w = int(np.flatnonzero(~defined)[0])
+        res.category, res.digits = "domain-range", th.info
+        res.culprit = _first_nan(nodes, sub64, w)
+        _worst(res, sub, w, predmp, meas, kmp)
+        res.fraction = res.undefined_fraction
+        return res
+    valid = normal & np.isfinite(r)
+    if not valid.any():
+        return res
+    # 3. Formula: loses more digits than the conditioning of the problem explains.
+    excess = np.where(valid, meas - np.minimum(logk, total), -np.inf)
+    cand = valid & (meas >= th.info) & (excess >= th.info)
+    with np.errstate(all="ignore"):
+        frac_formula = float(np.mean((pred64 - np.minimum(logk64, total) >= th.info)[fin64])) if fin64.any() else 0.0
+        frac_kappa = float(np.mean((logk64 >= th.info)[fin64])) if fin64.any() else 0.0
+    if cand.any():
+        w = int(np.argmax(np.where(cand, meas + 1e-3 * excess, -np.inf)))
+        res.category, res.digits = "formula", float(meas[w])
+        res.fraction = max(frac_formula, 1.0 / n)
+        _worst(res, sub, w, predmp, meas, kmp)
+        _attribute(res, nodes, steps, terms, rounding, u, w)
+    elif np.any(valid & (logk >= th.info)):
+        w = int(np.argmax(np.where(valid, logk, -np.inf)))
+        res.category, res.digits = "inherent", float(min(logk[w], total))
+        res.fraction = max(frac_kappa, 1.0 / n)
+        _worst(res, sub, w, predmp, meas, kmp)
+        _attribute(res, nodes, steps, terms, rounding, u, w)
+    return res
+
+
+def _relerr(approx: float, exact: Any) -> float:
+    if mpmath.isnan(exact) or exact == 0:
+        return math.nan
+    if not math.isfinite(approx):
+        return math.inf
+    try:
+        return abs(float((mpmath.mpf(approx) - exact) / exact))
+    except (OverflowError, ValueError):
+        return math.inf
+
+
+def _step_conditions(nodes: list[Node], vals: dict[int, Any], partials: dict[int, tuple[Any, ...]]
+                     ) -> dict[int, list[np.ndarray]]:
+    """c_kj = |a_j ∂op/∂a_j / op| for each operation k and operand j (as floats)."""
+    out: dict[int, list[np.ndarray]] = {}
+    for k, node in enumerate(nodes):
+        ps = partials.get(id(node))
+        if ps is None:
+            continue
+        v = vals[id(node)]
+        cs = []
+        for arg, p in zip(node.args, ps):
+            a = vals[id(arg)]
+            if isinstance(p, float) and p == 0.0:
+                cs.append(np.zeros(len(v)))
+                continue
+            try:
+                cs.append(_safe_div(a * p, v, MP_BACKEND))
+            except TypeError:
+                cs.append(np.zeros(len(v)))
+        out[k] = cs
+    return out
+
+
+def _attribute(res: Analysis, nodes: list[Node], steps: dict[int, list[np.ndarray]], terms: dict[int, np.ndarray],
+               rounding: list[int], u: float, w: int) -> None:
+    """Find where digits are lost: the operation whose result carries far more error than its operands."""
+    index = {id(n): i for i, n in enumerate(nodes)}
+    rset = set(rounding)
+    e = [0.0] * len(nodes)
+    best, best_gain = None, 1.0
+    for k, node in enumerate(nodes):
+        own = u if k in rset else 0.0
+        if node.kind == CONST or node.kind == INPUT:
+            e[k] = own
+            continue
+        cs = steps.get(k)
+        incoming = [e[index[id(a)]] for a in node.args]
+        if cs is None:
+            e[k] = own + max(incoming, default=0.0)
+            continue
+        e[k] = own + sum(float(np.nan_to_num(c[w], nan=0.0, posinf=1e300)) * ei for c, ei in zip(cs, incoming))
+        gain = e[k] / max(u, max(incoming, default=0.0))
+        if gain >= best_gain:
+            best, best_gain = k, gain
+    if terms:
+        res.dominant = max(terms, key=lambda k: float(np.nan_to_num(terms[k][w], nan=0.0)))
+    res.gain = best_gain
+    res.culprit = best if best is not None and best_gain >= 10 else (res.dominant if res.category == "formula" else best)
+    if res.culprit is not None:
+        node = nodes[res.culprit]
+        cs = steps.get(res.culprit)
+        weights = [float(np.nan_to_num(c[w], nan=0.0, posinf=1e300)) * e[index[id(a)]] for c, a in zip(cs, node.args)] \
+            if cs else [e[index[id(a)]] for a in node.args]
+        top = max(weights, default=0.0)
+        res.sources_of_error = [index[id(a)] for a, wt in zip(node.args, weights)
+                                if a.kind != CONST and wt >= 0.1 * top and e[index[id(a)]] >= 0.5 * u]
+
+
+def _first_nonfinite(nodes: list[Node], v64: dict[int, np.ndarray], w: int) -> int | None:
+    for k, node in enumerate(nodes):
+        v = v64.get(id(node))
+        if v is None:
+            continue
+        args_ok = all(np.isfinite(v64[id(a)][w]) and v64[id(a)][w] != 0 if id(a) in v64 else True for a in node.args)
+        if args_ok and (not np.isfinite(v[w]) or (v[w] == 0 and node.kind in ("mul", "div", "exp", "pow", "square"))):
+            return k
+    return None
+
+
+def _first_nan(nodes: list[Node], v64: dict[int, np.ndarray], w: int) -> int | None:
+    for k, node in enumerate(nodes):
+        v = v64.get(id(node))
+        if v is not None and np.isnan(v[w]) and all(not np.isnan(v64[id(a)][w]) for a in node.args if id(a) in v64):
+            return k
+    return None
+
+
+def _worst(res: Analysis, cols: dict[str, np.ndarray], w: int, pred: np.ndarray, meas: np.ndarray | None,
+           kappa: np.ndarray) -> None:
+    res.worst_at = {k: float(v[w]) for k, v in cols.items()}
+    res.worst_predicted = float(pred[w])
+    res.worst_measured = None if meas is None else float(meas[w])
+    res.worst_kappa = float(kappa[w])
+
+
+def _summary(base: dict[str, Any], cols: dict[str, np.ndarray], valid: np.ndarray, kappa: np.ndarray,
+             kappa_i: dict[str, np.ndarray], pred: np.ndarray, meas: np.ndarray | None, values: np.ndarray,
+             keep_points: bool, refined: bool, ranges: dict[str, InputRange]) -> Analysis:
+    kv = np.where(valid, np.nan_to_num(kappa, nan=0.0), -np.inf) if len(kappa) else np.array([0.0])
+    w = int(np.argmax(kv)) if valid.any() else 0
+    kappa_worst = float(kappa[w]) if valid.any() else math.nan
+    res = Analysis(
+        **base, refined=refined, kappa=kappa_worst,
+        kappa_median=float(np.median(kappa[valid])) if valid.any() else math.nan,
+        kappa_at={k: float(v[w]) for k, v in cols.items()} if valid.any() else {},
+        kappa_i={k: float(np.max(np.where(valid, v, -np.inf))) if valid.any() else math.nan
+                 for k, v in kappa_i.items()},
+        predicted=float(np.max(pred[valid])) if valid.any() else 0.0,
+        measured=None if meas is None or not valid.any() else float(np.max(meas[valid])),
+    )
+    unc = [(ranges[k].uncertainty, ranges[k].uncertainty_abs, k) for k in kappa_i
+           if ranges[k].uncertainty is not None or ranges[k].uncertainty_abs is not None]
+    if unc and valid.any():
+        total = np.zeros(len(kappa))
+        for rel, ab, k in unc:
+            r = rel if rel is not None else np.abs(ab / np.where(cols[k] != 0, cols[k], np.inf))
+            total = total + np.nan_to_num(kappa_i[k], nan=0.0) * r
+        res.result_uncertainty = float(np.max(total[valid]))
+    if keep_points:
+        for i in range(len(kappa)):
+            res.points.append(Point({k: float(v[i]) for k, v in cols.items()}, float(kappa[i]), float(pred[i]),
+                                    None if meas is None else float(meas[i]),
+                                    float(values[i]) if np.isfinite(values[i]) else None))
+    return res

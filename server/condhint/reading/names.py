@@ -1,0 +1,132 @@
+"""Which names in a module denote known elementary functions and constants.
+
+Spellings are tabulated per module; imports (`import numpy as np`, `from math import sqrt as s`,
+`from numpy import *`) map local names onto them. Nothing is imported or evaluated.
+"""
+from __future__ import annotations
+
+import ast
+from dataclasses import dataclass, field
+
+_COMMON = {
+    "sqrt": "sqrt", "exp": "exp", "log": "log", "log2": "log2", "log10": "log10", "log1p": "log1p",
+    "expm1": "expm1", "sin": "sin", "cos": "cos", "tan": "tan", "sinh": "sinh", "cosh": "cosh",
+    "tanh": "tanh", "hypot": "hypot", "copysign": "copysign", "floor": "floor", "ceil": "ceil",
+    "cbrt": "cbrt", "exp2": "exp2",
+}
+# Module -> local spelling -> function id.
+FUNCTION_SPELLINGS: dict[str, dict[str, str]] = {
+    "math": {**_COMMON, "asin": "asin", "acos": "acos", "atan": "atan", "atan2": "atan2", "asinh": "asinh",
+             "acosh": "acosh", "atanh": "atanh", "pow": "pow", "fabs": "abs", "erf": "erf", "erfc": "erfc"},
+    "numpy": {**_COMMON, "arcsin": "asin", "arccos": "acos", "arctan": "atan", "arctan2": "atan2",
+              "arcsinh": "asinh", "arccosh": "acosh", "arctanh": "atanh", "power": "pow", "float_power": "pow",
+              "abs": "abs", "absolute": "abs", "fabs": "abs", "square": "square", "reciprocal": "reciprocal",
+              "logaddexp": "logaddexp", "minimum": "min", "maximum": "max", "fmin": "min", "fmax": "max",
+              "add": "add", "subtract": "sub", "multiply": "mul", "divide": "div", "true_divide": "div",
+              "negative": "neg", "float64": "float", "double": "float", "asin": "asin", "acos": "acos",
+              "atan": "atan", "atan2": "atan2", "asinh": "asinh", "acosh": "acosh", "atanh": "atanh",
+              "pow": "pow"},
+    "scipy.special": {"erf": "erf", "erfc": "erfc", "expm1": "expm1", "log1p": "log1p", "cbrt": "cbrt",
+                      "exp2": "exp2", "logsumexp": "", "cosm1": "", "powm1": ""},
+    "builtins": {"abs": "abs", "pow": "pow", "min": "min", "max": "max", "float": "float"},
+}
+
+# Module -> name -> exact value text understood by the reference backend.
+CONSTANTS: dict[str, dict[str, str]] = {
+    "math": {"pi": "pi", "e": "e", "tau": "tau", "inf": "inf", "nan": "nan"},
+    "numpy": {"pi": "pi", "e": "e", "inf": "inf", "nan": "nan", "euler_gamma": "euler_gamma", "Inf": "inf",
+              "NaN": "nan"},
+}
+MODULE_ALIASES = {"np": "numpy", "numpy": "numpy", "math": "math", "scipy.special": "scipy.special"}
+INT_BUILTINS = {"len", "int", "round", "ord"}
+
+
+@dataclass
+class Names:
+    """The module aliases and imported names in force in a file."""
+
+    modules: dict[str, str] = field(default_factory=dict)  # local name -> module ("np" -> "numpy")
+    functions: dict[str, str] = field(default_factory=dict)  # local name -> function id
+    constants: dict[str, str] = field(default_factory=dict)  # local name -> exact value text
+    # How the file spells each function, for code generation: function id -> (module, local alias or None)
+    shadowed: set[str] = field(default_factory=set)
+
+    @classmethod
+    def of_module(cls, tree: ast.Module) -> "Names":
+        names = cls()
+        names.functions.update(FUNCTION_SPELLINGS["builtins"])
+        for node in ast.walk(tree):
+            if isinstance(node, ast.Import):
+                for alias in node.names:
+                    mod = alias.name
+                    if mod in ("math", "numpy", "scipy.special", "cmath"):
+                        local = alias.asname or mod.split(".")[0]
+                        names.modules[local] = "numpy" if mod == "numpy" else mod
+                    elif mod == "scipy" and alias.asname is None:
+                        names.modules["scipy"] = "scipy"
+            elif isinstance(node, ast.ImportFrom) and node.module and node.level == 0:
+                mod = node.module
+                if mod == "scipy":
+                    for alias in node.names:
+                        if alias.name == "special":
+                            names.modules[alias.asname or "special"] = "scipy.special"
+                    continue
+                if mod not in FUNCTION_SPELLINGS:
+                    continue
+                spell, consts = FUNCTION_SPELLINGS[mod], CONSTANTS.get(mod, {})
+                for alias in node.names:
+                    if alias.name == "*":
+                        names.functions.update({k: v for k, v in spell.items() if v})
+                        names.constants.update(consts)
+                        continue
+                    local = alias.asname or alias.name
+                    if spell.get(alias.name):
+                        names.functions[local] = spell[alias.name]
+                    elif alias.name in consts:
+                        names.constants[local] = consts[alias.name]
+            elif isinstance(node, (ast.FunctionDef, ast.AsyncFunctionDef, ast.ClassDef)):
+                names.shadowed.add(node.name)
+        for name in names.shadowed:
+            names.functions.pop(name, None)
+            names.constants.pop(name, None)
+        return names
+
+    def _module_of(self, expr: ast.expr) -> str | None:
+        if isinstance(expr, ast.Name):
+            return self.modules.get(expr.id)
+        if isinstance(expr, ast.Attribute) and isinstance(expr.value, ast.Name):
+            base = self.modules.get(expr.value.id)
+            if base == "scipy" and expr.attr == "special":
+                return "scipy.special"
+        return None
+
+    def function(self, func: ast.expr) -> str | None:
+        """The function id a callee expression denotes, or None."""
+        if isinstance(func, ast.Name):
+            return self.functions.get(func.id)
+        if isinstance(func, ast.Attribute):
+            mod = self._module_of(func.value)
+            if mod is not None:
+                return FUNCTION_SPELLINGS.get(mod, {}).get(func.attr) or None
+        return None
+
+    def constant(self, expr: ast.expr) -> str | None:
+        """The exact-value text a name or attribute denotes (`math.pi` -> "pi"), or None."""
+        if isinstance(expr, ast.Name):
+            return self.constants.get(expr.id)
+        if isinstance(expr, ast.Attribute):
+            mod = self._module_of(expr.value)
+            if mod is not None:
+                return CONSTANTS.get(mod, {}).get(expr.attr)
+        return None
+
+    def spelling(self, fn_id: str) -> tuple[str, str | None]:
+        """How this file would spell a call of `fn_id`: (prefix text, import to add or None)."""
+        for local, fid in self.functions.items():
+            if fid == fn_id and local not in FUNCTION_SPELLINGS["builtins"]:
+                return local, None
+        for local, mod in sorted(self.modules.items(), key=lambda kv: kv[1] != "numpy"):
+            for attr, fid in FUNCTION_SPELLINGS.get(mod, {}).items():
+                if fid == fn_id and mod in ("numpy", "math"):
+                    return f"{local}.{attr}", None
+        return "", None

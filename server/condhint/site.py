@@ -1,0 +1,78 @@
+"""Sites: the floating-point expressions extracted from source, with the input ranges they are analysed on."""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+
+from condhint.expr import Node, Span
+
+
+@dataclass(frozen=True)
+class Interval:
+    low: float = -math.inf
+    high: float = math.inf
+    low_open: bool = False
+    high_open: bool = False
+
+    def intersect(self, other: "Interval") -> "Interval":
+        lo, lo_open = max((self.low, self.low_open), (other.low, other.low_open), key=lambda t: (t[0], t[1]))
+        hi, hi_open = min((self.high, not self.high_open), (other.high, not other.high_open), key=lambda t: (t[0], t[1]))
+        return Interval(lo, hi, lo_open, not hi_open)
+
+    @property
+    def empty(self) -> bool:
+        return self.low > self.high or (self.low == self.high and (self.low_open or self.high_open))
+
+    @property
+    def bounded(self) -> bool:
+        return math.isfinite(self.low) and math.isfinite(self.high)
+
+    def __str__(self) -> str:
+        return f"{'(' if self.low_open else '['}{self.low:g}, {self.high:g}{')' if self.high_open else ']'}"
+
+
+@dataclass(frozen=True)
+class InputRange:
+    """The range an input is sampled on and where that range came from."""
+
+    interval: Interval
+    source: str  # "comment", "assert", "guard", "branch", "default", combined with "+" when narrowed twice
+    line: int | None = None
+    uncertainty: float | None = None  # declared relative uncertainty (0.01 for ±1%)
+    uncertainty_abs: float | None = None  # declared absolute uncertainty
+    is_int: bool = False
+
+    def narrowed(self, interval: Interval, source: str, line: int) -> "InputRange":
+        src = source if self.source == "default" else f"{self.source}+{source}"
+        return replace(self, interval=self.interval.intersect(interval), source=src, line=line)
+
+
+@dataclass(frozen=True)
+class Filter:
+    """A condition known to hold where the site runs (from a guard or branch) on a computed value."""
+
+    condition: Node  # a COMPARE node
+    holds: bool
+    line: int
+
+
+@dataclass(frozen=True)
+class Binding:
+    """A single assignment inlined into a site: the chain of lines a multi-statement formula spans."""
+
+    name: str
+    line: int
+    span: Span
+
+
+@dataclass
+class Site:
+    root: Node
+    scope: str
+    span: Span
+    statement_line: int
+    ranges: dict[str, InputRange] = field(default_factory=dict)  # declared or narrowed; others use the default
+    filters: tuple[Filter, ...] = ()
+    bindings: tuple[Binding, ...] = ()
+    bindings_by_node: dict[int, Binding] = field(default_factory=dict, repr=False)
+    float_format: str = "float64"
