@@ -74,9 +74,12 @@ def finding_for(site: Site, a: Analysis, cfg: Config, path: str) -> Finding | No
         else:
             what = f"the rounding in {_label(flagged)} is magnified downstream"
         msg = (f"{_code(text)} loses {digits(a.digits)} of {total:.0f} digits at {where(a.worst_at)} "
-               f"(predicted {digits(a.worst_predicted)}): {what}. The result itself needs only "
-               f"κ ≈ {num(a.worst_kappa)}, so this loss is avoidable by rewriting the formula; "
-               f"≥ {num(th.info, 2)} digits are lost on {frac}.")
+               f"(predicted {digits(a.worst_predicted)}): {what}. "
+               + (f"The result itself needs only κ ≈ {num(a.worst_kappa)}, so this loss is avoidable by rewriting "
+                  "the formula" if (a.worst_kappa or 0) < 10 ** (a.digits - 1) else
+                  f"The inputs are exact here and the problem has κ ≈ {num(a.worst_kappa)}, yet the digits are lost "
+                  "to rounding inside the formula, so a different formula can avoid the loss")
+               + f"; ≥ {num(th.info, 2)} digits are lost on {frac}.")
     elif cat == "inherent":
         k = a.worst_kappa or a.kappa
         msg = (f"{_code(site.root.text)} is ill-conditioned at {where(a.worst_at)}: κ ≈ {num(k)} magnifies any "

@@ -1,0 +1,33 @@
+"""`path:line:col: severity: message [CODE]`, one finding a line, then a summary."""
+from __future__ import annotations
+
+from collections import Counter
+
+from condhint.findings import SEVERITY_RANK, FileReport
+
+
+def write(reports: list[FileReport], options: dict) -> str:
+    minimum = SEVERITY_RANK[options.get("min_severity") or "warning"]
+    lines = []
+    shown = Counter()
+    for rep in reports:
+        for f in rep.findings:
+            if f.rank < minimum:
+                continue
+            shown[f.severity] += 1
+            lines.append(f"{f.path}:{f.span.line}:{f.span.col + 1}: {f.severity}: {f.message} [{f.code}]")
+            for line, note in f.related:
+                lines.append(f"{f.path}:{line}:1: note: {note}")
+            for fix in f.fixes[:1]:
+                lines.append(f"    fix: {fix.title}")
+    suppressed = sum(len(r.suppressed) for r in reports)
+    parts = [f"{shown[s]} {s}{'s' if shown[s] != 1 else ''}" for s in ("error", "warning", "info") if shown[s]]
+    summary = f"{len(reports)} file{'s' if len(reports) != 1 else ''} checked: " + (", ".join(parts) or "no findings")
+    if suppressed:
+        summary += f" ({suppressed} suppressed)"
+    if options.get("statistics"):
+        by_code = Counter(f.code for r in reports for f in r.findings if f.rank >= minimum)
+        for code, count in sorted(by_code.items()):
+            lines.append(f"{count:6d}  {code}")
+    lines.append(summary)
+    return "\n".join(lines) + "\n"

@@ -1,0 +1,99 @@
+"""The symbolic bridge: expression DAGs -> sympy, and the κ formula.
+
+sympy objects are built node by node from our own DAG (never from text), so no user text is parsed or
+evaluated. Work that can take long runs in `budget.run_with_budget`.
+"""
+from __future__ import annotations
+
+import re
+from typing import Any
+
+import sympy as sp
+
+from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, topological
+
+_SAFE = re.compile(r"[^0-9A-Za-z_]")
+
+
+def symbol_name(name: str) -> str:
+    """A sympy symbol name for an input (attributes and subscripts become identifiers)."""
+    s = _SAFE.sub("_", name)
+    return s if s and not s[0].isdigit() else f"v_{s}"
+
+
+def _const(node: Node) -> sp.Expr:
+    exact = node.exact or repr(node.value)
+    named = {"pi": sp.pi, "e": sp.E, "tau": 2 * sp.pi, "euler_gamma": sp.EulerGamma, "inf": sp.oo}
+    neg = exact.startswith("-")
+    core = exact[1:] if neg else exact
+    if core in named:
+        v = named[core]
+    elif "/" in core:
+        a, b = core.split("/")
+        v = sp.Rational(int(a), int(b))
+    else:
+        v = sp.Rational(core) if any(ch in core for ch in ".eE") else sp.Integer(int(core))
+    return -v if neg else v
+
+
+_UNARY = {
+    "sqrt": sp.sqrt, "cbrt": lambda a: sp.root(a, 3), "exp": sp.exp, "exp2": lambda a: sp.Integer(2) ** a,
+    "expm1": lambda a: sp.exp(a) - 1, "log": sp.log, "log2": lambda a: sp.log(a, 2), "log10": lambda a: sp.log(a, 10),
+    "log1p": lambda a: sp.log(1 + a), "sin": sp.sin, "cos": sp.cos, "tan": sp.tan, "asin": sp.asin, "acos": sp.acos,
+    "atan": sp.atan, "sinh": sp.sinh, "cosh": sp.cosh, "tanh": sp.tanh, "asinh": sp.asinh, "acosh": sp.acosh,
+    "atanh": sp.atanh, "abs": sp.Abs, "square": lambda a: a**2, "reciprocal": lambda a: 1 / a, "erf": sp.erf,
+    "erfc": sp.erfc, "neg": lambda a: -a, "floor": sp.floor, "ceil": sp.ceiling,
+}
+_BINARY = {
+    "add": lambda a, b: a + b, "sub": lambda a, b: a - b, "mul": lambda a, b: a * b, "div": lambda a, b: a / b,
+    "pow": lambda a, b: a**b, "atan2": sp.atan2, "hypot": lambda a, b: sp.sqrt(a**2 + b**2),
+    "logaddexp": lambda a, b: sp.log(sp.exp(a) + sp.exp(b)), "min": sp.Min, "max": sp.Max,
+    "copysign": lambda a, b: sp.Abs(a) * sp.sign(b),
+}
+_CMP = {"<": sp.Lt, "<=": sp.Le, ">": sp.Gt, ">=": sp.Ge, "==": sp.Eq, "!=": sp.Ne}
+
+
+def to_sympy(root: Node, positive: set[str] | None = None) -> tuple[sp.Expr, dict[str, sp.Symbol]]:
+    """The exact real function a DAG computes, with one real symbol per input."""
+    positive = positive or set()
+    symbols: dict[str, sp.Symbol] = {}
+    vals: dict[int, Any] = {}
+    for node in topological(root):
+        if node.kind == INPUT:
+            name = node.name or "x"
+            if name not in symbols:
+                symbols[name] = sp.Symbol(symbol_name(name), real=True, positive=True if name in positive else None,
+                                          integer=True if node.is_int else None)
+            vals[id(node)] = symbols[name]
+        elif node.kind == CONST:
+            vals[id(node)] = _const(node)
+        elif node.kind == COMPARE:
+            a, b = (vals[id(x)] for x in node.args)
+            vals[id(node)] = _CMP[node.name](a, b)  # type: ignore[index]
+        elif node.kind == SELECT:
+            c, a, b = (vals[id(x)] for x in node.args)
+            vals[id(node)] = sp.Piecewise((a, c), (b, True))
+        else:
+            args = [vals[id(x)] for x in node.args]
+            fn = _UNARY.get(node.kind) if len(args) == 1 else _BINARY.get(node.kind)
+            if fn is None:
+                raise ValueError(f"no symbolic form for {node.kind}")
+            vals[id(node)] = fn(*args)
+    return vals[id(root)], symbols
+
+
+def kappa_expression(expr: sp.Expr, symbols: dict[str, sp.Symbol]) -> sp.Expr:
+    """κ = Σᵢ |xᵢ ∂f/∂xᵢ / f|, each term simplified."""
+    terms = []
+    for s in symbols.values():
+        t = sp.simplify(sp.cancel(s * sp.diff(expr, s) / expr))
+        if t != 0:
+            terms.append(sp.Abs(t))
+    return sp.Add(*terms) if terms else sp.Integer(0)
+
+
+def kappa_formula_text(root: Node, positive: set[str]) -> str:
+    """The κ formula as text in Python-like notation (run it under a time budget)."""
+    expr, symbols = to_sympy(root, positive)
+    k = kappa_expression(expr, symbols)
+    return sp.sstr(k)
