@@ -15,6 +15,8 @@ const DEFAULTS = Object.freeze({
 });
 
 const SEVERITIES = Object.freeze(["info", "warning", "error"]);
+/** Bounds the server accepts for whole-number settings. */
+const LIMITS = Object.freeze({ samples: [8, 100000], debounceMs: [0, 100000] });
 const SERVE_ARGS = Object.freeze(["-m", "condhint", "serve"]);
 
 /**
@@ -61,6 +63,10 @@ function buildServerCommand(configured, pythonCommand) {
 
 /** @param {unknown} v */
 const isFiniteNumber = (v) => typeof v === "number" && Number.isFinite(v);
+
+/** @param {readonly number[]} bounds */
+const wholeIn = ([low, high]) => (/** @type {unknown} */ v) =>
+  Number.isInteger(v) && /** @type {number} */ (v) >= low && /** @type {number} */ (v) <= high;
 
 /**
  * Reads the extension's settings (`condhint.thresholds.info`, `condhint.inlayHints`, ...) and
@@ -114,10 +120,9 @@ function buildServerSettings(read) {
     thresholds,
     inlayHints: pick("inlayHints", DEFAULTS.inlayHints, (v) => typeof v === "boolean", "true or false"),
     defaultRange: [...range],
-    samples: pick("samples", DEFAULTS.samples, (v) => Number.isInteger(v) && /** @type {number} */ (v) >= 2,
-      "an integer >= 2"),
-    debounceMs: pick("debounceMs", DEFAULTS.debounceMs, (v) => Number.isInteger(v) && /** @type {number} */ (v) >= 0,
-      "an integer >= 0"),
+    samples: pick("samples", DEFAULTS.samples, wholeIn(LIMITS.samples), `an integer from ${LIMITS.samples.join(" to ")}`),
+    debounceMs: pick("debounceMs", DEFAULTS.debounceMs, wholeIn(LIMITS.debounceMs),
+      `an integer from ${LIMITS.debounceMs.join(" to ")}`),
     minSeverity: pick("minSeverity", DEFAULTS.minSeverity, (v) => SEVERITIES.includes(/** @type {string} */ (v)),
       `one of ${SEVERITIES.join(", ")}`),
   };
@@ -155,4 +160,4 @@ function needsRestart(affects) {
   return affects("condhint.server.command");
 }
 
-module.exports = { DEFAULTS, SEVERITIES, buildServerCommand, buildServerSettings, configurationFor, needsRestart };
+module.exports = { DEFAULTS, SEVERITIES, LIMITS, buildServerCommand, buildServerSettings, configurationFor, needsRestart };

@@ -8,7 +8,7 @@ const test = require("node:test");
 const assert = require("node:assert/strict");
 const fs = require("node:fs");
 const path = require("node:path");
-const { DEFAULTS, buildServerCommand, buildServerSettings, configurationFor, needsRestart } = require("../src/config");
+const { DEFAULTS, LIMITS, buildServerCommand, buildServerSettings, configurationFor, needsRestart } = require("../src/config");
 
 const manifest = JSON.parse(fs.readFileSync(path.join(__dirname, "..", "package.json"), "utf8"));
 const contributed = manifest.contributes.configuration.properties;
@@ -101,6 +101,19 @@ test("settings: each invalid value is reported and replaced by its default", () 
     assert.ok(problems.some((p) => p.startsWith(`condhint.${key} `)), key);
   }
   assert.deepEqual(settings, buildServerSettings(reader({})).settings);
+});
+
+test("settings: whole-number bounds match package.json and the server", () => {
+  assert.equal(contributed["condhint.samples"].minimum, LIMITS.samples[0]);
+  assert.equal(contributed["condhint.samples"].maximum, LIMITS.samples[1]);
+  assert.equal(contributed["condhint.debounceMs"].minimum, LIMITS.debounceMs[0]);
+  assert.equal(contributed["condhint.debounceMs"].maximum, LIMITS.debounceMs[1]);
+  for (const [key, [low, high]] of Object.entries(LIMITS)) {
+    assert.equal(buildServerSettings(reader({ [key]: low })).settings[key], low);
+    assert.equal(buildServerSettings(reader({ [key]: high })).settings[key], high);
+    assert.equal(buildServerSettings(reader({ [key]: low - 1 })).problems.length, 1);
+    assert.equal(buildServerSettings(reader({ [key]: high + 1 })).problems.length, 1);
+  }
 });
 
 test("settings: non-finite range ends are rejected", () => {
