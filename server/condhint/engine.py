@@ -8,7 +8,8 @@ from collections import OrderedDict
 from dataclasses import dataclass, field
 
 from condhint.config import Config
-from condhint.expr import Span
+from condhint.budget import OverBudget, run_with_budget
+from condhint.expr import Node, Span, topological
 from condhint.findings import FileReport, Finding
 from condhint.messages import finding_for, not_analysed
 from condhint.numeric.analysis import Analysis, analyse
@@ -17,6 +18,7 @@ from condhint.reading.comments import Clauses, find_comments
 from condhint.reading.source import Source
 from condhint.reading.walker import Walker
 from condhint.site import Site
+from condhint.symbolic import kappa_formula_text
 
 
 class AnalysisCache:
@@ -146,12 +148,38 @@ def analyse_module(text: str, path: str, cfg: Config, cache: AnalysisCache | Non
         if prev is None or (f.digits_lost or 0) > (prev.digits_lost or 0):
             best[k] = f
     findings = sorted(best.values(), key=lambda f: (f.span.line, f.span.col, f.code))
+    if cfg.kappa_formula:
+        for f in findings:
+            f.kappa_formula = kappa_formula(f._site, cfg)  # type: ignore[attr-defined]
     report.findings.extend(findings)
     _apply_suppressions(report, comments)
     report.findings = [f for f in report.findings if _at_least(f.severity, cfg.min_severity)]
     report.findings.sort(key=lambda f: (f.span.line, f.span.col, f.code))
     report.seconds = time.perf_counter() - t0
     return out
+
+
+_FORMULAS: OrderedDict[str, str | None] = OrderedDict()
+
+
+def kappa_formula(site: Site, cfg: Config, root: Node | None = None) -> str | None:
+    """The symbolic κ formula of a site's expression, or None when sympy cannot give it within the budget."""
+    root = root or site.root
+    positive = {k for k, r in site.ranges.items() if r.interval.low >= 0}
+    key = f"{root.key()}|{sorted(positive)}"
+    if key in _FORMULAS:
+        return _FORMULAS[key]
+    if len(topological(root)) > 60:
+        text = None
+    else:
+        try:
+            text = run_with_budget(kappa_formula_text, (root, positive), cfg.formula_budget)
+        except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, ZeroDivisionError):
+            text = None
+    _FORMULAS[key] = text
+    while len(_FORMULAS) > 4096:
+        _FORMULAS.popitem(last=False)
+    return text
 
 
 def _at_least(severity: str, minimum: str) -> bool:

@@ -256,7 +256,7 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
 
     sub64 = {id(node): np.asarray(v64[id(node)], dtype=float)[idx] for node in nodes if differentiable(node)}
     # 1. Overflow / underflow: the true result is ordinary but an intermediate is not.
-    bad = normal & ~np.isfinite(r)
+    bad = normal & np.isinf(r)
     und = normal & (r == 0)
     for kind, mask in (("overflow", bad | und),):
         if mask.any():
@@ -382,7 +382,7 @@ def _first_nonfinite(nodes: list[Node], v64: dict[int, np.ndarray], w: int) -> i
         if v is None:
             continue
         args_ok = all(np.isfinite(v64[id(a)][w]) and v64[id(a)][w] != 0 if id(a) in v64 else True for a in node.args)
-        if args_ok and (not np.isfinite(v[w]) or (v[w] == 0 and node.kind in ("mul", "div", "exp", "pow", "square"))):
+        if args_ok and (np.isinf(v[w]) or (v[w] == 0 and node.kind in ("mul", "div", "exp", "pow", "square"))):
             return k
     return None
 

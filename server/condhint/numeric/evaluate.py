@@ -5,6 +5,7 @@ import math
 import time
 from typing import Any
 
+import mpmath
 import numpy as np
 
 from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, topological
@@ -71,8 +72,22 @@ def local_partials(node: Node, vals: Values, backend: Any) -> tuple[Any, ...]:
         c = vals[id(node.args[0])]
         return (0.0, backend.where(c, 1.0, 0.0), backend.where(c, 0.0, 1.0))
     fn = FUNCTIONS[node.kind]
+    args = [vals[id(a)] for a in node.args]
+    out = vals[id(node)]
     with np.errstate(all="ignore"):
-        return fn.partials(backend, [vals[id(a)] for a in node.args], vals[id(node)])
+        try:
+            return fn.partials(backend, args, out)
+        except (ZeroDivisionError, ValueError, OverflowError, TypeError):
+            pass  # mpmath raises where binary64 gives inf/nan: evaluate sample by sample
+        cols: list[list[Any]] = [[] for _ in node.args]
+        for i in range(len(out)):
+            try:
+                ps = fn.partials(backend, [a[i:i + 1] for a in args], out[i:i + 1])
+            except (ZeroDivisionError, ValueError, OverflowError, TypeError):
+                ps = tuple(mpmath.mpf("nan") for _ in node.args)
+            for col, p in zip(cols, ps):
+                col.append(p[0] if isinstance(p, np.ndarray) else p)
+        return tuple(np.array(c, dtype=object) for c in cols)
 
 
 def differentiable(node: Node) -> bool:

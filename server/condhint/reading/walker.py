@@ -235,6 +235,18 @@ class Walker:
         targets = stmt.targets if isinstance(stmt, ast.Assign) else [stmt.target]
         if value is None:
             return
+        if (len(targets) == 1 and isinstance(targets[0], (ast.Tuple, ast.List)) and isinstance(value, (ast.Tuple, ast.List))
+                and len(targets[0].elts) == len(value.elts)
+                and not any(isinstance(e, ast.Starred) for e in (*targets[0].elts, *value.elts))):
+            # `a, b = x + 1, y * 2`: each name is bound to its own value (all evaluated before binding).
+            nodes = [self._scan(conv, v) for v in value.elts]
+            for t, n in zip(targets[0].elts, nodes):
+                if isinstance(t, ast.Name):
+                    self._bind(t.id, n, stmt, env, ctx)
+                else:
+                    for name in _target_names(t):
+                        env[name] = Node(INPUT, name=name, text=name)
+            return
         node = self._scan(conv, value)
         if isinstance(stmt, ast.AnnAssign) and isinstance(stmt.annotation, ast.Name) and stmt.annotation.id == "int":
             ctx.int_names.add(_target_names(stmt.target)[0] if _target_names(stmt.target) else "")

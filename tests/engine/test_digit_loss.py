@@ -1,0 +1,144 @@
+"""Digits lost to rounding: condhint's predicted and measured figures against outside references."""
+from __future__ import annotations
+
+import math
+
+import mpmath
+import numpy as np
+import pytest
+
+from tests.conftest import codes, findings
+
+U = 2.0**-53
+
+
+def digits_lost(approx: float, exact) -> float:
+    """Reference measure: log10(max(relative error, u) / u) with the exact value from mpmath."""
+    err = abs((mpmath.mpf(approx) - exact) / exact)
+    return max(0.0, math.log10(max(float(err), U) / U))
+
+
+CLASSIC = [
+    # (source, python formula, mpmath formula, reference)
+    ("import math\ndef f(x):  # condhint: 1e6 <= x <= 1e15\n    return math.sqrt(x + 1) - math.sqrt(x)\n",
+     lambda x: math.sqrt(x + 1) - math.sqrt(x), lambda x: mpmath.sqrt(x + 1) - mpmath.sqrt(x),
+     "difference of square roots: common practice; Goldberg 1991"),
+    ("import numpy as np\ndef f(x):  # condhint: 1e-12 <= x <= 1e-3\n    return np.exp(x) - 1\n",
+     lambda x: float(np.exp(x) - 1), lambda x: mpmath.expm1(x), "exp(x) - 1: Goldberg 1991; ISO C99 expm1"),
+    ("import math\ndef f(x):  # condhint: 1e-12 <= x <= 1e-3\n    return math.log(1 + x)\n",
+     lambda x: math.log(1 + x), lambda x: mpmath.log1p(x), "log(1 + x): Goldberg 1991; ISO C99 log1p"),
+    ("import math\ndef f(x):  # condhint: 1e-7 <= x <= 1e-2\n    return 1 - math.cos(x)\n",
+     lambda x: 1 - math.cos(x), lambda x: 1 - mpmath.cos(x), "1 - cos x: NIST DLMF ch. 4 (half-angle form)"),
+    ("import math\ndef f(b):  # condhint: 1e4 <= b <= 1e8\n    a, c = 1.0, 1.0\n"
+     "    return (-b + math.sqrt(b*b - 4*a*c)) / (2*a)\n",
+     lambda b: (-b + math.sqrt(b * b - 4)) / 2, lambda b: (-b + mpmath.sqrt(b * b - 4)) / 2,
+     "textbook quadratic formula with b² ≫ 4ac: Forsythe 1966; Goldberg 1991"),
+    ("def f(r, n):  # condhint: 0.01 <= r <= 0.1, 1e4 <= n <= 1e9\n    return (1 + r/n)**(n*10.0)\n",
+     None, None, "compound interest for large n: Higham 2002"),
+]
+
+
+@pytest.mark.parametrize("case", CLASSIC, ids=["sqrt-diff", "expm1", "log1p", "1-cos", "quadratic", "compound"])
+def test_predicted_and_measured_agree_and_match_mpmath(case):
+    src, py, ref, source = case
+    (f,) = [f for f in findings(src) if f.code == "CH101"]
+    assert f.category == "formula"
+    assert f.measured_digits_lost is not None and f.predicted_digits_lost is not None
+    assert abs(f.predicted_digits_lost - f.measured_digits_lost) <= 1.5, source
+    assert f.digits_lost >= 4
+    if py is not None:
+        (name, x), *_ = f.worst_at.items()
+        with mpmath.workdps(80):
+            expected = digits_lost(py(x), ref(mpmath.mpf(x)))
+        assert f.measured_digits_lost == pytest.approx(expected, abs=0.05), source
+    else:
+        r, n = f.worst_at["r"], f.worst_at["n"]
+        with mpmath.workdps(80):
+            exact = mpmath.exp(n * 10.0 * mpmath.log1p(mpmath.mpf(r) / n))
+            expected = digits_lost((1 + r / n) ** (n * 10.0), exact)
+        assert f.measured_digits_lost == pytest.approx(expected, abs=0.05), source
+
+
+def test_measured_loss_agrees_with_numpy_expm1_and_log1p():
+    # numpy's expm1/log1p are accurate reference implementations (ISO C99): the naive formulas' error
+    # against them must match the digits condhint measured.
+    (e,) = findings("import numpy as np\ndef f(x):  # condhint: x in [3e-9, 3e-9]\n    return np.exp(x) - 1\n")
+    (l,) = findings("import numpy as np\ndef f(x):  # condhint: x in [3e-9, 3e-9]\n    return np.log(1 + x)\n")
+    x = 3e-9
+    for f, naive, good in ((e, np.exp(x) - 1, np.expm1(x)), (l, np.log(1 + x), np.log1p(x))):
+        numpy_digits = math.log10(max(abs(naive - good) / abs(good), U) / U)
+        assert f.measured_digits_lost == pytest.approx(numpy_digits, abs=0.3)
+
+
+def test_culprit_is_the_cancelling_operation_and_message_explains_it():
+    (f,) = findings("import math\ndef f(x):  # condhint: 1e6 <= x <= 1e15\n    return math.sqrt(x + 1) - math.sqrt(x)\n")
+    assert f.expression == "math.sqrt(x + 1) - math.sqrt(x)"
+    assert (f.span.line, f.span.col) == (3, 11)
+    assert "subtraction" in f.message and "avoidable" in f.message and "κ ≈ 0.5" in f.message
+    assert f.kappa == pytest.approx(0.5, rel=1e-3)
+
+
+def test_log_of_one_plus_small_is_blamed_on_log():
+    (f,) = findings("import math\ndef f(x):  # condhint: 1e-12 <= x <= 1e-6\n    return 2 * math.log(1 + x)\n")
+    assert f.expression == "math.log(1 + x)" and "log" in f.message
+
+
+STABLE = {
+    "products": "def f(x, y, z):\n    return x * y * z / (x + 1.5)\n",
+    "sums of positives": "import math\ndef f(x, y):\n    return x + y + math.sqrt(x) + math.exp(-y)\n",
+    "hypot": "import numpy as np\ndef f(x, y):\n    return np.hypot(x, y)\n",
+    "integer index arithmetic": "def f(a, n: int):\n    i = n // 2 + 1\n    j = (i - 1) * 2 - n\n    return a[i + j - 1]\n",
+    "difference of two independent inputs": "def f(x, y):\n    return x - y\n",
+    "branch guarded against the bad regime": (
+        "import math\ndef f(x):  # condhint: 1e-12 <= x <= 3\n    if x < 0.5:\n        return 2 * math.sin(x / 2)**2\n"
+        "    return 1 - math.cos(x)\n"),
+    "guard on a computed value": (
+        "import math\ndef f(x):  # condhint: 0.5 <= x <= 2\n    if x < 1:\n        raise ValueError\n"
+        "    return math.sqrt(x - 0.5)\n"),
+}
+
+
+def test_the_same_formula_without_the_branch_is_flagged():
+    assert codes("import math\ndef f(x):  # condhint: 1e-12 <= x <= 3\n    return 1 - math.cos(x)\n") == ["CH101"]
+
+
+@pytest.mark.parametrize("name", sorted(STABLE))
+def test_no_finding_on_stable_code(name):
+    assert findings(STABLE[name]) == [], name
+
+
+def test_sterbenz_exact_subtraction_is_inherent_not_formula():
+    # Sterbenz 1974 (also Higham 2002): x - 1.0 is exact for x in [0.5, 2]; the sensitivity is the problem's.
+    (f,) = findings("def f(x):  # condhint: 0.5 <= x <= 2\n    return x - 1.0\n")
+    assert f.code == "CH201" and f.category == "inherent"
+    assert f.measured_digits_lost == 0.0
+    assert "no rewrite helps" in f.message
+
+
+def test_declared_uncertainty_is_magnified_by_kappa():
+    # First-order propagation: relative uncertainty of the result ≈ κ · r (common practice).
+    (f,) = findings("def f(x):  # condhint: 1.001 <= x <= 1.01, x ± 1%\n    return x - 1.0\n")
+    k = 1.001 / 0.001
+    assert f.result_uncertainty == pytest.approx(k * 0.01, rel=0.05)
+    assert "uncertain by" in f.message
+
+
+def test_overflow_when_the_result_is_ordinary():
+    (f,) = findings("import math\ndef f(x, y):  # condhint: 1e200 <= x <= 1e300, 1 <= y <= 2\n"
+                    "    return math.sqrt(x*x + y*y)\n")
+    assert f.code == "CH301" and f.expression == "x*x"
+
+
+def test_domain_error_from_rounding():
+    # The exact argument is 1e-30 > 0, but the rounded one is often negative: sqrt returns nan (design §2).
+    (f,) = findings("import math\ndef f(x):  # condhint: 1 <= x <= 100\n"
+                    "    return math.sqrt((x + 0.1) - x - 0.1 + 1e-30)\n")
+    assert f.code == "CH302" and f.category == "domain"
+    assert f.expression.startswith("math.sqrt(") and "domain" in f.message
+    x = f.worst_at["x"]
+    assert math.isnan(float(np.sqrt(np.float64((x + 0.1) - x - 0.1 + 1e-30))))
+
+
+def test_declared_range_outside_the_domain_is_reported():
+    (f,) = findings("import math\ndef f(x):  # condhint: 0 <= x <= 2\n    return math.sqrt(x - 1.0) * 3.0\n")
+    assert f.code == "CH302" and "declared range" in f.message

@@ -1,0 +1,72 @@
+"""κ computed by condhint against published or derivable closed forms (references named per case)."""
+from __future__ import annotations
+
+import math
+
+import mpmath
+import pytest
+
+from condhint.config import Config
+from condhint.engine import analyse_module
+from condhint.numeric.analysis import analyse
+
+
+def kappa_at(expr: str, point: dict[str, float], imports: str = "import math") -> tuple[float, dict[str, float]]:
+    """κ and κᵢ of `expr` at a single point (each input's declared range is that point)."""
+    params = ", ".join(point)
+    ranges = ", ".join(f"{k} in [{v!r}, {v!r}]" for k, v in point.items())
+    src = f"{imports}\ndef f({params}):  # condhint: {ranges}\n    return {expr}\n"
+    mod = analyse_module(src, "t.py", Config(), cache=None)
+    (site,) = mod.sites
+    a = analyse(site, Config())
+    return a.kappa, a.kappa_i
+
+
+CASES = [
+    # (expression, point, closed form of κ, source)
+    ("x**2", 3.7, lambda x: 2.0, "x^p: |p| (common practice; Higham 2002)"),
+    ("x*x", 0.01, lambda x: 2.0, "x^2 via a product: 2 (common practice)"),
+    ("math.sqrt(x)", 12.5, lambda x: 0.5, "sqrt: 1/2 (common practice)"),
+    ("math.exp(x)", 7.25, lambda x: abs(x), "exp: |x| (derivable; Higham 2002)"),
+    ("math.exp(x)", -30.0, lambda x: abs(x), "exp: |x| (derivable; Higham 2002)"),
+    ("math.log(x)", 1.001, lambda x: 1 / abs(math.log(x)), "log: 1/|log x| (derivable; Higham 2002)"),
+    ("math.log(x)", 250.0, lambda x: 1 / abs(math.log(x)), "log: 1/|log x| (derivable; Higham 2002)"),
+    ("math.sin(x)", 3.0, lambda x: abs(x / math.tan(x)), "sin: |x cot x| (derivable; common practice)"),
+    ("math.cos(x)", 1.5, lambda x: abs(x * math.tan(x)), "cos: |x tan x| (derivable; common practice)"),
+    ("math.tan(x)", 1.55, lambda x: abs(2 * x / math.sin(2 * x)), "tan: |2x / sin 2x| (derivable)"),
+    ("x - 3.0", 3.01, lambda x: abs(x / (x - 3.0)), "x - c: |x / (x - c)| (common practice)"),
+]
+
+
+@pytest.mark.parametrize("expr,x,closed,source", CASES, ids=[f"{c[0]}@{c[1]}" for c in CASES])
+def test_kappa_of_elementary_functions(expr, x, closed, source):
+    kappa, _ = kappa_at(expr, {"x": x})
+    assert kappa == pytest.approx(closed(x), rel=1e-6), source
+
+
+@pytest.mark.parametrize("a,b,c", [(1.0, -3.0, 2.0), (2.0, 5.0, 1.0), (1.0, -2.0, 0.999)])
+def test_kappa_of_quadratic_root_with_respect_to_a(a, b, c):
+    # κ of a root t1 of a t^2 + b t + c with respect to a is |t1 / (t1 - t2)|: derivable by implicit
+    # differentiation (common practice); close roots (the third case) are sensitive.
+    kappa, kappa_i = kappa_at("(-b + math.sqrt(b*b - 4*a*c)) / (2*a)", {"a": a, "b": b, "c": c})
+    with mpmath.workdps(50):
+        d = mpmath.sqrt(mpmath.mpf(b) ** 2 - 4 * mpmath.mpf(a) * c)
+        t1 = (-b + d) / (2 * a)
+        t2 = (-b - d) / (2 * a)
+        expected = float(abs(t1 / (t1 - t2)))
+    assert kappa_i["a"] == pytest.approx(expected, rel=1e-6)
+
+
+def test_kappa_of_a_sum_is_componentwise():
+    # Componentwise κ of a sum: Σ|xᵢ| / |Σ xᵢ| (Higham 2002, chapter on summation).
+    kappa, kappa_i = kappa_at("x + y + z", {"x": 1.5, "y": -0.75, "z": 0.125})
+    assert kappa == pytest.approx((1.5 + 0.75 + 0.125) / abs(1.5 - 0.75 + 0.125), rel=1e-9)
+
+
+def test_kappa_is_exact_even_where_binary64_derivatives_cancel():
+    # sqrt(x+1) - sqrt(x) has κ = x / (2 sqrt(x) sqrt(x+1)) → 1/2 for large x (derivable; mpmath at 60 digits).
+    kappa, _ = kappa_at("math.sqrt(x + 1) - math.sqrt(x)", {"x": 1e12})
+    with mpmath.workdps(60):
+        x = mpmath.mpf(1e12)
+        expected = float(x / (2 * mpmath.sqrt(x) * mpmath.sqrt(x + 1)))
+    assert kappa == pytest.approx(expected, rel=1e-6)
