@@ -149,6 +149,24 @@ local function run()
   report.cleared = vim.wait(timeout, function() return #lsp_diagnostics(bufnr, "CH101") == 0 end, 50)
   report.diagnostics_after = lsp_diagnostics(bufnr)
   step("re-analysed")
+
+  -- A second file under the same root is served by the same client.
+  local second = os.getenv("CONDHINT_SECOND_FILE")
+  if second then
+    vim.cmd("edit " .. vim.fn.fnameescape(second))
+    local other = vim.api.nvim_get_current_buf()
+    local function attached_to_other()
+      for _, c in ipairs(condhint.clients()) do
+        if c.attached_buffers and c.attached_buffers[other] then
+          return true
+        end
+      end
+      return false
+    end
+    report.second_attached = vim.wait(timeout, attached_to_other, 50)
+    report.client_count_after_second = #condhint.clients()
+    step("second file")
+  end
 end
 
 local ok, err = pcall(run)

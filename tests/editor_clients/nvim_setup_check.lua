@@ -35,6 +35,14 @@ local function check()
   assert(config.settings.condhint.samples == 32, vim.inspect(config.settings))
   assert(config.init_options.condhint.samples == 32, vim.inspect(config.init_options))
   assert(config.root_dir == project)
+  -- Empty tables go out as JSON objects, never as the empty array Neovim would send.
+  condhint.setup({ cmd = { "x" }, settings = {} })
+  local encoded = vim.fn.json_encode(condhint.client_config(project).settings)
+  assert(encoded == '{"condhint": {}}' or encoded == '{"condhint":{}}', encoded)
+  condhint.setup({ cmd = { "x" }, settings = { thresholds = {}, defaultRange = { 1, 2 } } })
+  local decoded = vim.fn.json_decode(vim.fn.json_encode(condhint.client_config(project).init_options))
+  assert(vim.fn.json_encode(decoded.condhint.thresholds):match("^{%s*}$"), vim.fn.json_encode(decoded))
+  assert(decoded.condhint.defaultRange[2] == 2)
   assert(config.name == "condhint")
 
   -- Root: the nearest folder with pyproject.toml, from a file two levels down.

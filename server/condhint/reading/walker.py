@@ -162,13 +162,15 @@ class Walker:
         if isinstance(stmt, _FUNCS):
             for d in stmt.decorator_list:
                 self._scan(conv, d)
-            self._function(stmt, stmt.name if scope == "<module>" else f"{scope}.{stmt.name}", env)
+            # Module-level names other than constants may be rebound before the function runs: inputs then.
+            self._function(stmt, stmt.name if scope == "<module>" else f"{scope}.{stmt.name}",
+                           {} if scope == "<module>" else env)
             env[stmt.name] = None
             return
         if isinstance(stmt, ast.ClassDef):
             for sub in stmt.body:
                 if isinstance(sub, _FUNCS):
-                    self._function(sub, f"{stmt.name}.{sub.name}", {k: v for k, v in env.items()})
+                    self._function(sub, f"{stmt.name}.{sub.name}", {} if scope == "<module>" else dict(env))
             return
         if isinstance(stmt, (ast.Assign, ast.AnnAssign, ast.AugAssign)):
             self._assign(scope, stmt, env, ctx, conv)

@@ -1,0 +1,142 @@
+"""Reading Python source into sites: names, imports, constants, inlining, ranges from comments and guards."""
+from __future__ import annotations
+
+import time
+from pathlib import Path
+
+import pytest
+
+from condhint.cli import main
+from tests.conftest import codes, findings
+
+SQRT_DIFF = "{imp}\ndef f(x):  # condhint: 1e6 <= x <= 1e15\n    return {s}(x + 1) - {s}(x)\n"
+
+
+@pytest.mark.parametrize("imp,spelling", [
+    ("import math", "math.sqrt"), ("import numpy as np", "np.sqrt"), ("import numpy", "numpy.sqrt"),
+    ("from math import sqrt", "sqrt"), ("from numpy import sqrt as root", "root"), ("from numpy import *", "sqrt"),
+    ("import math as m", "m.sqrt"),
+])
+def test_functions_are_recognised_under_any_alias(imp, spelling):
+    assert codes(SQRT_DIFF.format(imp=imp, s=spelling)) == ["CH101"]
+
+
+def test_unknown_or_shadowed_functions_are_opaque_inputs():
+    assert codes("def sqrt(v):\n    return v\n" + SQRT_DIFF.format(imp="", s="sqrt")) == []
+    assert codes(SQRT_DIFF.format(imp="import mylib", s="mylib.sqrt")) == []
+
+
+def test_inlining_a_multi_statement_formula_reports_the_losing_line_with_the_chain():
+    (f,) = findings("""
+        import math
+        def root(a, b, c):  # condhint: 1 <= a <= 2, 1e5 <= b <= 1e8, 1 <= c <= 2
+            disc = b*b - 4*a*c
+            s = math.sqrt(disc)
+            return (-b + s) / (2*a)
+        """)
+    assert f.code == "CH101" and f.span.line == 6 and f.expression == "-b + s"
+    assert [line for line, _ in f.related] == [4, 5]
+
+
+def test_module_constants_are_constants_not_inputs():
+    src = """
+        import math
+        G = 9.80665
+        HALF = 1 / 2
+        def f(x):  # condhint: 1e-12 <= x <= 1e-6
+            return math.log(G * x + HALF * 2) * G
+        """
+    (f,) = findings(src)
+    assert set(f.inputs) == {"x"}
+
+
+def test_reassigned_module_names_are_inputs(analyse_src):
+    mod = analyse_src("import math\nK = 1.0\nK = 2.0\nC = 3.0\ndef f(x):\n    return math.log(K + x + C)\n")
+    (site,) = mod.sites
+    assert {n.name for n in __import__("condhint.expr").expr.topological(site.root) if n.kind == "input"} == {"K", "x"}
+
+
+def test_integer_only_arithmetic_is_never_reported():
+    assert findings("def f(n: int, m: int):\n    return (n * n - m * m) + (n - m) ** 2\n") == []
+    assert findings("def f(xs):\n    n = len(xs)\n    for i in range(n):\n        j = i - n + 1\n"
+                    "        xs[j] = i * 2 - 1\n") == []
+
+
+RANGE_FORMS = [
+    ("# condhint: 1e-12 <= x <= 1e-6", ""),
+    ("# condhint: x in [1e-12, 1e-6]", ""),
+    ("", "    assert 1e-12 <= x <= 1e-6\n"),
+    ("", "    if x > 1e-6 or x < 1e-12:\n        raise ValueError('x out of range')\n"),
+    ("", "    if not (x <= 1e-6):\n        return 0.0\n    assert x >= 1e-12\n"),
+]
+
+
+@pytest.mark.parametrize("comment,guard", RANGE_FORMS)
+def test_ranges_from_comments_asserts_and_guards(comment, guard):
+    (f,) = findings(f"import math\ndef f(x):  {comment}\n{guard}    return math.exp(x) - 1\n")
+    assert f.inputs["x"].high == pytest.approx(1e-6) and f.inputs["x"].low == pytest.approx(1e-12)
+    assert f.inputs["x"].source != "default"
+
+
+def test_branches_narrow_the_range_of_the_code_inside_them():
+    src = """
+        import math
+        def f(x):  # condhint: 1e-12 <= x <= 30
+            if x < 1e-3:
+                y = x + x * x / 2
+            else:
+                y = math.exp(x) - 1
+            return y
+        """
+    assert codes(src) == [] or all(f.span.line != 7 or f.severity == "info" for f in findings(src))
+    (f,) = [f for f in findings(src.replace("if x < 1e-3", "if x > 1e-3")) if f.span.line == 7]
+    assert f.inputs["x"].high == pytest.approx(1e-3)
+
+
+def test_suppression_comment_silences_only_its_line_and_codes():
+    base = "import math\ndef f(x):  # condhint: 1e-12 <= x <= 1e-6\n    return math.exp(x) - 1{c}\n"
+    assert codes(base.format(c="  # condhint: ignore")) == []
+    assert codes(base.format(c="  # condhint: ignore[CH101]")) == []
+    assert codes(base.format(c="  # condhint: ignore[CH201]")) == ["CH101"]
+
+
+def test_a_comment_it_cannot_read_is_reported_not_ignored():
+    fs = findings("import math\ndef f(x):  # condhint: x is small\n    return math.exp(x) - 1\n")
+    assert [f.code for f in fs][:1] == ["CH001"] and "not understood" in fs[0].message
+
+
+def test_thirty_levels_of_reassignment_stay_linear():
+    def module(levels: int) -> str:
+        names = [f"v{i}" for i in range(levels)]
+        body = ["    v0 = x + y"] + [f"    {b} = {a} * {a} + {a}" for a, b in zip(names, names[1:])]
+        return "def f(x, y):  # condhint: 0.5 <= x <= 1, 0.5 <= y <= 1\n" + "\n".join(body) + f"\n    return {names[-1]}\n"
+
+    times = {}
+    for levels in (10, 30):
+        t0 = time.perf_counter()
+        findings(module(levels))
+        times[levels] = time.perf_counter() - t0
+    assert times[30] < 8 * times[10] + 0.5, times  # linear: ~3×, never exponential
+
+
+def test_syntax_error_yields_one_finding_and_the_run_goes_on(tmp_path: Path, capsys):
+    (tmp_path / "bad.py").write_text("def f(x):\n    return (x +\n")
+    (tmp_path / "good.py").write_text(SQRT_DIFF.format(imp="import math", s="math.sqrt"))
+    assert main(["check", str(tmp_path), "--min-severity", "info"]) == 1
+    out = capsys.readouterr().out
+    assert "bad.py:2" in out and "[CH001]" in out and "good.py:3:12: error" in out
+
+
+def test_the_engine_never_evaluates_user_code(tmp_path: Path):
+    marker = tmp_path / "evaluated"
+    src = f"""
+import math, os
+open({str(marker)!r}, "w").write("module ran")
+G = os.system("touch {marker}") or 9.81
+def f(x):  # condhint: 1e6 <= x <= 1e15
+    return math.sqrt(x + 1 + open({str(marker)!r}, "w").write("x")) - math.sqrt(x) + (1 / 0)
+raise SystemExit("module body executed")
+"""
+    (tmp_path / "evil.py").write_text(src)
+    assert main(["check", str(tmp_path / "evil.py"), "--format", "json"]) in (0, 1)
+    assert not marker.exists()
