@@ -34,6 +34,9 @@ def decode(raw: bytes, name: str = "<bytes>") -> tuple[str, str]:
     try:
         encoding, _ = tokenize.detect_encoding(io.BytesIO(raw).readline)
     except SyntaxError as exc:
+        if "encoding declaration" in str(exc):
+            raise UnreadableFile(f"{name}: not valid utf-8 text and no encoding declared; declare it with a "
+                                 "`# -*- coding: … -*-` line") from None
         raise UnreadableFile(f"{name}: cannot determine the encoding: {exc}") from None
     try:
         text = raw.decode(encoding)
