@@ -113,10 +113,27 @@ local function inlay_hints_wanted(settings)
   return settings.inlayHints == true or settings.inlay_hints == true
 end
 
+--- A copy of `value` in which every empty table is an empty JSON object: Neovim would
+--- otherwise send `{}` as the empty array `[]`.
+local function json_objects(value)
+  if type(value) ~= "table" then
+    return value
+  end
+  if next(value) == nil then
+    return vim.empty_dict()
+  end
+  local copy = {}
+  for k, v in pairs(value) do
+    copy[k] = json_objects(v)
+  end
+  return copy
+end
+M._json_objects = json_objects
+
 --- The table handed to vim.lsp.start / vim.lsp.start_client for one root folder.
 function M.client_config(root)
   local opts = M.options or copy_options(nil)
-  local settings = opts.settings
+  local settings = json_objects(opts.settings)
   return {
     name = opts.name,
     cmd = opts.cmd,
