@@ -166,6 +166,17 @@ local function run()
     report.second_attached = vim.wait(timeout, attached_to_other, 50)
     report.client_count_after_second = #condhint.clients()
     step("second file")
+
+    -- :CondhintRestart replaces the client and re-attaches both buffers to the new one.
+    local old_id = condhint.clients()[1].id
+    vim.cmd("CondhintRestart")
+    local function restarted()
+      local clients = condhint.clients()
+      return #clients == 1 and clients[1].id ~= old_id and clients[1].attached_buffers[bufnr]
+        and clients[1].attached_buffers[other]
+    end
+    report.restarted = vim.wait(timeout, restarted, 50)
+    step("restarted")
   end
 end
 

@@ -100,6 +100,7 @@ def test_neovim_end_to_end(which: str, server: list[str], project: Path) -> None
     # One client per root: the second file joined the first file's server.
     assert report["second_attached"] is True
     assert report["client_count_after_second"] == 1
+    assert report["restarted"] is True
 
 
 def test_emacs_end_to_end(server: list[str], project: Path) -> None:
