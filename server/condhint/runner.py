@@ -1,18 +1,21 @@
-"""Running the core over files and trees: file discovery, configuration per path, notebooks later."""
+"""Running the core over files and trees: discovery, configuration per path, notebooks, processes, shards."""
 from __future__ import annotations
 
 import fnmatch
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Iterable, Iterator
+from typing import TYPE_CHECKING, Iterable, Iterator
 
 from condhint.config import Config
-from condhint.engine import analyse_module
+from condhint.engine import ModuleAnalysis, analyse_module
 from condhint.expr import Span
 from condhint.findings import FileReport
 from condhint.messages import not_analysed
 from condhint.sourcefile import UnreadableFile, read_source
+
+if TYPE_CHECKING:
+    from condhint.review.shard import Shard
 
 SKIP_DIRS = {"__pycache__", "node_modules", "site-packages", "venv", "env", "build", "dist"}
 
@@ -61,15 +64,54 @@ def discover(paths: list[str], cfg: Config) -> Iterator[Target]:
                 yield Target(fp, shown)
 
 
-def check_target(target: Target, cfg: Config) -> FileReport:
-    """Analyse one file; an unreadable file yields a CH001 finding instead of an exception."""
+def path_order(shown: str) -> tuple:
+    """The order files are reported in: by path, a directory's files before its subdirectories.
+
+    It is the walk's own order, applied across all arguments, so merged shards come out as one run would.
+    """
+    parts = shown.replace("\\", "/").split("/")
+    return tuple((1, p) for p in parts[:-1]) + ((0, parts[-1]),)
+
+
+def check_target(target: Target, cfg: Config, fixes: bool = False) -> FileReport:
+    """Analyse one file; an unreadable file yields a CH001 finding instead of an exception.
+
+    With `fixes`, verified rewrites are attached to the findings (when the rewrites package is present).
+    """
+    cfg = cfg.for_path(target.shown)
+    if target.path.suffix == ".ipynb":
+        from condhint.review.notebooks import check_notebook
+
+        return check_notebook(target.path, target.shown, cfg)
     try:
         src = read_source(target.path)
     except UnreadableFile as exc:
         rep = FileReport(target.shown, "error", message=str(exc))
         rep.findings.append(not_analysed(target.shown, Span(1, 0, 1, 1), str(exc)))
         return rep
-    return analyse_module(src.text, target.shown, cfg.for_path(target.shown)).report
+    analysis = analyse_module(src.text, target.shown, cfg)
+    if fixes:
+        attach_fixes(analysis, cfg)
+    return analysis.report
+
+
+def attach_fixes(analysis: ModuleAnalysis, cfg: Config) -> None:
+    try:
+        from condhint.rewrites import fixes_for
+    except ModuleNotFoundError as exc:
+        if exc.name and not exc.name.startswith("condhint.rewrites"):
+            raise
+        return
+    for f in analysis.report.findings:
+        if f.category == "formula" and not f.fixes:
+            f.fixes = list(fixes_for(f, analysis, cfg))
+
+
+def _check_in_worker(job: tuple[Target, Config, bool]) -> FileReport:
+    report = check_target(*job)
+    for f in [*report.findings, *report.suppressed]:
+        f.__dict__.pop("_site", None)  # the expression DAG stays in the worker
+    return report
 
 
 @dataclass
@@ -81,5 +123,21 @@ class RunResult:
         return [f for r in self.reports for f in r.findings]
 
 
-def check_paths(paths: list[str], cfg: Config) -> RunResult:
-    return RunResult([check_target(t, cfg) for t in discover(paths, cfg)])
+def check_paths(paths: list[str], cfg: Config, jobs: int = 1, shard: "Shard | None" = None,
+                fixes: bool = False, show_progress: bool | None = None) -> RunResult:
+    """Check files and trees: `jobs` worker processes, only `shard`'s part of the files, in path order."""
+    from condhint.review.parallel import map_ordered
+    from condhint.review.progress import progress
+
+    targets = sorted(discover(paths, cfg), key=lambda t: path_order(t.shown))
+    if shard is not None:
+        targets = [t for t in targets if shard.owns(t.shown)]
+    with progress(len(targets), show_progress) as advance:
+        if jobs <= 1 or len(targets) <= 1:
+            reports = []
+            for t in targets:
+                reports.append(check_target(t, cfg, fixes))
+                advance()
+        else:
+            reports = map_ordered(_check_in_worker, [(t, cfg, fixes) for t in targets], jobs, lambda i: advance())
+    return RunResult(reports)

@@ -223,8 +223,10 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
     logk64 = _digits(k64, 99.0)
     sources = {k: ranges[k].source for k in names}
 
-    suspicious = bool(np.any(pred64[fin64] >= th.info - 0.5)) or bool(np.any(logk64[fin64] >= th.info - 0.5)) or bool(
-        np.any(inner_bad))
+    # Re-evaluate in mpmath only what may be reported: a predicted loss, a non-finite value, or (when the user
+    # declared ranges, so that sensitivity is reported) a large κ. Everything else keeps its binary64 figures.
+    suspicious = bool(np.any(pred64[fin64] >= th.info - 0.5)) or bool(np.any(inner_bad)) or (
+        declared and bool(np.any(logk64[fin64] >= th.info - 0.5)))
     base = dict(names=names, bounds=bounds, sources=sources, n_samples=n, declared=declared)
     if not suspicious:
         valid = fin64 & (r64 != 0)

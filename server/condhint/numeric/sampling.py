@@ -66,6 +66,9 @@ def sample(ranges: dict[str, InputRange], names: list[str], n: int, seed: int,
     bounds = {name: resolve(ranges[name].interval, default) for name in names}
     cols: dict[str, np.ndarray] = {}
     corners = 2 ** len(names) if len(names) <= 4 else 0
+    for name in names:
+        if ranges[name].is_int and ranges[name].source == "default":
+            bounds[name] = (max(bounds[name][0], 1.0), max(bounds[name][1], 1.0))  # counts and sizes
     for k, name in enumerate(names):
         lo, hi = bounds[name]
         pts = points(lo, hi, n)

@@ -12,6 +12,8 @@ Writer = Callable[[list[FileReport], dict], str]
 WRITERS: dict[str, str] = {
     "text": "condhint.outputs.text:write",
     "json": "condhint.outputs.json_out:write",
+    "sarif": "condhint.outputs.sarif:write",
+    "markdown": "condhint.outputs.markdown:write",
 }
 
 

@@ -61,6 +61,12 @@ class Walker:
         self.module_constants = self._module_constants()
         module_clauses = self._scope_clauses(self.tree.body, [])
         self._scope("<module>", self.tree.body, params={}, clauses=module_clauses, outer_env={})
+        # A value inlined into a later site is analysed there, where its error matters; its own site would
+        # only repeat that work (and report losses the consumer does not feel).
+        inner: set[int] = set()
+        for site in self.sites:
+            inner.update(id(n) for n in topological(site.root)[:-1])
+        self.sites = [s for s in self.sites if id(s.root) not in inner]
         return self.sites
 
     def _module_constants(self) -> dict[str, Node]:

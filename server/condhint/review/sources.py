@@ -41,7 +41,10 @@ def import_line(text: str | None) -> int:
         tree = ast.parse(text)
     except (SyntaxError, ValueError):
         return 1
+    lines = text.splitlines()
     line = 1
+    while line <= min(2, len(lines)) and lines[line - 1].startswith("#"):  # `#!` and coding lines stay first
+        line += 1
     for i, stmt in enumerate(tree.body):
         is_doc = i == 0 and isinstance(stmt, ast.Expr) and isinstance(stmt.value, ast.Constant) \
             and isinstance(stmt.value.value, str)

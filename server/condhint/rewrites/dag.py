@@ -1,0 +1,174 @@
+"""Building and taking apart expression DAGs for rewrites.
+
+Candidates are new DAGs over the same INPUT nodes as the original; untouched subtrees are the original
+nodes themselves (so code generation can reuse the user's text). New nodes carry no span and no text.
+"""
+from __future__ import annotations
+
+import math
+from fractions import Fraction
+
+from condhint.expr import CONST, INPUT, SELECT, Node, topological
+
+
+# ---- construction ------------------------------------------------------------------------------------------
+def const(value: float | int | Fraction, exact: str | None = None) -> Node:
+    """A literal: integers and dyadic fractions are exact; other fractions are spelled as p/q."""
+    if isinstance(value, Fraction):
+        if value.denominator == 1:
+            return Node(CONST, value=float(value.numerator), exact=str(value.numerator))
+        exact = exact or f"{value.numerator}/{value.denominator}"
+        return Node(CONST, value=float(value), exact=exact)
+    if isinstance(value, int) and not isinstance(value, bool):
+        return Node(CONST, value=float(value), exact=str(value))
+    return Node(CONST, value=float(value), exact=exact or repr(float(value)))
+
+
+def op(kind: str, *args: Node) -> Node:
+    return Node(kind, tuple(args))
+
+
+def add(a: Node, b: Node) -> Node:
+    return op("add", a, b)
+
+
+def sub(a: Node, b: Node) -> Node:
+    return op("sub", a, b)
+
+
+def mul(a: Node, b: Node) -> Node:
+    return op("mul", a, b)
+
+
+def div(a: Node, b: Node) -> Node:
+    return op("div", a, b)
+
+
+def neg(a: Node) -> Node:
+    return op("neg", a)
+
+
+def call(kind: str, *args: Node) -> Node:
+    return op(kind, *args)
+
+
+def power(a: Node, k: int | Fraction) -> Node:
+    return op("pow", a, const(Fraction(k)))
+
+
+def compare(a: Node, operator: str, b: Node) -> Node:
+    return Node("compare", (a, b), name=operator)
+
+
+def select(cond: Node, if_true: Node, if_false: Node) -> Node:
+    return Node(SELECT, (cond, if_true, if_false))
+
+
+def scaled(c: int | Fraction, a: Node) -> Node:
+    """c·a written the way a person would: `a`, `-a`, `2 * a`, `a / 2`."""
+    c = Fraction(c)
+    if c == 1:
+        return a
+    if c == -1:
+        return neg(a)
+    if c.numerator == 1 and c.denominator > 1:
+        return div(a, const(c.denominator))
+    if c.numerator == -1 and c.denominator > 1:
+        return neg(div(a, const(c.denominator)))
+    return mul(const(c), a)
+
+
+# ---- recognising shapes --------------------------------------------------------------------------------------
+def const_value(node: Node) -> Fraction | None:
+    """The exact rational value of a literal, or None (irrational named constants, non-literals)."""
+    if node.kind != CONST or node.exact is None:
+        return None
+    try:
+        return Fraction(node.exact)
+    except (ValueError, ZeroDivisionError):
+        return None
+
+
+def is_const(node: Node, value: float) -> bool:
+    v = const_value(node)
+    return v is not None and v == Fraction(value)
+
+
+def unary(node: Node, kind: str) -> Node | None:
+    """The argument when `node` is a call of the one-argument function `kind`."""
+    return node.args[0] if node.kind == kind and len(node.args) == 1 else None
+
+
+def square_of(node: Node) -> Node | None:
+    """x for x*x, x**2, square(x)."""
+    if node.kind == "mul" and same(node.args[0], node.args[1]):
+        return node.args[0]
+    if node.kind == "pow" and is_const(node.args[1], 2):
+        return node.args[0]
+    if node.kind == "square":
+        return node.args[0]
+    return None
+
+
+def same(a: Node, b: Node) -> bool:
+    return a is b or a.key() == b.key()
+
+
+def signed_terms(node: Node) -> tuple[tuple[int, Node], tuple[int, Node]] | None:
+    """A two-term sum as ((s1, t1), (s2, t2)) with node = s1·t1 + s2·t2 and sᵢ = ±1 (negations unwrapped)."""
+    if node.kind not in ("add", "sub"):
+        return None
+    a, b = node.args
+    sa, sb = 1, (1 if node.kind == "add" else -1)
+    if a.kind == "neg":
+        sa, a = -sa, a.args[0]
+    if b.kind == "neg":
+        sb, b = -sb, b.args[0]
+    return (sa, a), (sb, b)
+
+
+def difference(node: Node) -> tuple[Node, Node] | None:
+    """(a, b) when node computes a − b: `a - b`, `a + -b`, `-b + a`."""
+    terms = signed_terms(node)
+    if terms is None:
+        return None
+    (sa, a), (sb, b) = terms
+    if sa == 1 and sb == -1:
+        return a, b
+    if sa == -1 and sb == 1:
+        return b, a
+    return None
+
+
+def product_factors(node: Node) -> list[Node]:
+    """The factors of a chain of multiplications (a*b*c -> [a, b, c])."""
+    if node.kind == "mul":
+        return product_factors(node.args[0]) + product_factors(node.args[1])
+    return [node]
+
+
+def inputs(node: Node) -> set[str]:
+    return {n.name for n in topological(node) if n.kind == INPUT and n.name is not None}
+
+
+def substitute(root: Node, target: Node, replacement: Node) -> Node:
+    """`root` with the node `target` (by identity) replaced; shared structure is kept."""
+    if root is target:
+        return replacement
+    done: dict[int, Node] = {id(target): replacement}
+    for node in topological(root):
+        if id(node) in done or not node.args:
+            continue
+        args = tuple(done.get(id(a), a) for a in node.args)
+        if any(x is not y for x, y in zip(args, node.args)):
+            done[id(node)] = Node(node.kind, args, name=node.name, value=node.value, exact=node.exact,
+                                  is_int=node.is_int)
+    return done.get(id(root), root)
+
+
+def size(node: Node) -> int:
+    return len(topological(node))
+
+
+def finite(x: float) -> bool:
+    return isinstance(x, float) and math.isfinite(x)

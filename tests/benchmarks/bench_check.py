@@ -1,0 +1,60 @@
+"""Headless throughput: `condhint check` beside `ast.parse` and pyflakes on the same files, in one run.
+
+Run: python tests/benchmarks/bench_check.py
+"""
+from __future__ import annotations
+
+import ast
+import io
+import statistics
+import sys
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT))
+
+from condhint.config import Config  # noqa: E402
+from condhint.engine import AnalysisCache, analyse_module  # noqa: E402
+from tests.benchmarks.numeric_module import numeric_module  # noqa: E402
+
+
+def best_of(fn, repeat: int = 3) -> float:
+    times = []
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t0)
+    return min(times)
+
+
+def pyflakes_check(text: str) -> None:
+    from pyflakes.api import check
+    from pyflakes.reporter import Reporter
+
+    check(text, "m.py", Reporter(io.StringIO(), io.StringIO()))
+
+
+def row(label: str, text: str, repeat: int = 3) -> None:
+    lines = text.count("\n")
+    cfg = Config()
+    t_parse = best_of(lambda: ast.parse(text), repeat)
+    t_flakes = best_of(lambda: pyflakes_check(text), repeat)
+    t_cold = best_of(lambda: analyse_module(text, "m.py", cfg, cache=None), repeat)
+    warm = AnalysisCache()
+    analyse_module(text, "m.py", cfg, cache=warm)
+    t_warm = best_of(lambda: analyse_module(text, "m.py", cfg, cache=warm), repeat)
+    print(f"{label:<22} {lines:>7} {lines / t_cold:>10.0f} {lines / t_warm:>10.0f} {t_cold / t_parse:>9.0f}x "
+          f"{t_cold / t_flakes:>9.1f}x   parse {lines / t_parse:>9.0f} l/s, pyflakes {lines / t_flakes:>8.0f} l/s")
+
+
+def main() -> None:
+    print(f"{'file':<22} {'lines':>7} {'cold l/s':>10} {'warm l/s':>10} {'vs parse':>10} {'vs flakes':>10}")
+    row("generated 1,000", numeric_module(1000))
+    row("generated 10,000", numeric_module(10000), repeat=1)
+    demo = "\n".join(p.read_text() for p in sorted((ROOT / "docs/examples/marram").glob("*.py")))
+    row("demo (marram)", demo)
+
+
+if __name__ == "__main__":
+    main()
