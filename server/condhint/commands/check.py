@@ -1,4 +1,4 @@
-"""`condhint check PATH…`: findings for files and trees, in text or JSON."""
+"""`condhint check PATH…`: findings for files, trees and notebooks, as text, JSON, SARIF or Markdown."""
 from __future__ import annotations
 
 import argparse
@@ -8,19 +8,23 @@ from pathlib import Path
 from condhint.commands.common import UsageError, add_config_options, config_from
 from condhint.findings import SEVERITY_RANK
 from condhint.outputs import WRITERS, writer
+from condhint.review.options import Narrowing, add_review_options, print_notes, run_settings, statistics_text
 from condhint.runner import check_paths
+
+HUMAN_FORMATS = ("text", "markdown")  # these show warnings and errors unless --min-severity says otherwise
 
 
 def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("check", help="report numeric accuracy findings", description=(
         "Report, for each floating-point expression, digits lost to rounding (avoidable), sensitivity to "
         "inputs (inherent), overflow and domain risks. Figures are estimates over sampled inputs."))
-    p.add_argument("paths", nargs="*", default=["."], help="files or directories (default: .)")
+    p.add_argument("paths", nargs="*", default=["."], help="files (.py, .ipynb) or directories (default: .)")
     p.add_argument("--format", choices=sorted(WRITERS), default="text")
     p.add_argument("--output", metavar="FILE", help="write the report to FILE instead of stdout")
     p.add_argument("--fail-on", choices=("info", "warning", "error"), help="exit 1 from this severity on")
     p.add_argument("--statistics", action="store_true", help="add counts by code")
     add_config_options(p)
+    add_review_options(p)
     p.set_defaults(run=run)
 
 
@@ -32,16 +36,21 @@ def run(args: argparse.Namespace) -> int:
     if args.min_severity:
         from dataclasses import replace
 
-        cfg = replace(cfg, min_severity=args.min_severity) if args.format != "text" else cfg
-    result = check_paths(args.paths, cfg)
-    options = {"min_severity": args.min_severity or ("warning" if args.format == "text" else "info"),
-               "statistics": args.statistics}
-    out = writer(args.format)(result.reports, options)
+        cfg = replace(cfg, min_severity=args.min_severity) if args.format not in HUMAN_FORMATS else cfg
+    narrowing = Narrowing(args)
+    result = check_paths(args.paths, cfg, **run_settings(args))
+    notes = narrowing.apply(result.reports)
+    shown = args.min_severity or ("warning" if args.format in HUMAN_FORMATS else "info")
+    options = {"min_severity": shown, "statistics": args.statistics and args.format != "text"}
+    out = writer(args.format)(result.reports, options) + statistics_text(args, result.reports, shown)
     if args.output:
         from condhint.atomic import write_text_atomic
 
         write_text_atomic(Path(args.output), out)
     else:
         sys.stdout.write(out)
+    print_notes(notes)
+    if args.write_baseline:
+        return 0
     fail = SEVERITY_RANK[args.fail_on or cfg.fail_on]
     return 1 if any(f.rank >= fail for f in result.findings) else 0

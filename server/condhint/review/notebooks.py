@@ -70,11 +70,16 @@ def _without_magics(text: str) -> tuple[str, str]:
 
 
 def read_cells(path: Path) -> list[CodeCell]:
-    """The code cells of an nbformat 4 notebook; ValueError with a reason when it is not one."""
+    """The code cells of an nbformat 4 notebook file; ValueError with a reason when it is not one."""
     try:
         data = json.loads(path.read_bytes().decode("utf-8-sig"))
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise ValueError(f"not a readable notebook: {exc}") from None
+    return cells_of(data)
+
+
+def cells_of(data: Any) -> list[CodeCell]:
+    """The code cells of a notebook's decoded JSON."""
     if not isinstance(data, dict) or not isinstance(data.get("cells"), list):
         raise ValueError("not an nbformat 4 notebook (no `cells` list)")
     meta = data.get("metadata") if isinstance(data.get("metadata"), dict) else {}
