@@ -42,7 +42,7 @@ class Thresholds:
 class Config:
     thresholds: Thresholds = Thresholds()
     # Inputs without a declared range are sampled on [low, high] (log-uniformly): magnitudes from a
-    # millionth to a million cover ordinary quantities in ordinary units (see docs/ranges.md).
+    # millionth to a million cover ordinary quantities in ordinary units (see docs/configuration.md).
     default_range: tuple[float, float] = (1e-6, 1e6)
     samples: int = 256  # binary64 samples per site
     reference_samples: int = 40  # of which this many are re-evaluated in mpmath when a site looks suspicious
