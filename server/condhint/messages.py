@@ -65,10 +65,12 @@ def finding_for(site: Site, a: Analysis, cfg: Config, path: str) -> Finding | No
     frac = f"{pct(a.fraction or 0)} of the sampled range"
     text = flagged.text
     if cat == "formula":
-        if flagged.kind in ("sub", "add"):
-            what = (f"{_label(flagged)} cancels the leading digits of "
-                    + (" and ".join(_code(s.text) for s in srcs) if srcs else "its operands")
-                    + (", which carry rounding error" if srcs else ""))
+        if flagged.kind in ("sub", "add") and len(flagged.args) == 2:
+            left, right = flagged.args
+            carriers = " and ".join(_code(x.text) for x in srcs) if srcs else "the operands"
+            gain = f" about ×{num(a.gain, 2)}" if a.gain is not None and a.gain >= 10 else ""
+            what = (f"{_label(flagged)} of {_code(left.text)} and {_code(right.text)} cancels their leading digits "
+                    f"and magnifies{gain} the rounding error carried by {carriers}")
         elif srcs:
             what = f"{_label(flagged)} magnifies the rounding error of {', '.join(_code(s.text) for s in srcs)}"
         else:
@@ -91,8 +93,10 @@ def finding_for(site: Site, a: Analysis, cfg: Config, path: str) -> Finding | No
         msg += (" The formula is accurate for exact inputs: no rewrite helps; reduce the error of the inputs "
                 "upstream, or reformulate the problem.")
     elif cat == "overflow":
-        msg = (f"{_code(flagged.text)} overflows or underflows at {where(a.worst_at)} although the result of "
-               f"{_code(site.root.text)} is an ordinary number: the computed value is inf, nan or 0.")
+        what = "underflows to 0" if a.underflow else "overflows to inf"
+        msg = (f"{_code(flagged.text)} {what} at {where(a.worst_at)} although the result of "
+               f"{_code(site.root.text)} is an ordinary number there, so the code returns "
+               f"{'0, inf or nan' if a.underflow else 'inf or nan'} instead.")
     else:
         fn = FUNCTIONS.get(flagged.kind)
         dom = f" ({fn.domain})" if fn and fn.domain else ""

@@ -60,6 +60,7 @@ class Analysis:
     gain: float | None = None
     result_uncertainty: float | None = None
     undefined_fraction: float = 0.0
+    underflow: bool = False
     declared: bool = False
     points: list[Point] = field(default_factory=list)
     note: str = ""
@@ -267,6 +268,7 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
             if culprit is not None:
                 res.category, res.digits = kind, total
                 res.culprit = culprit
+                res.underflow = bool(sub64[id(nodes[culprit])][w] == 0)
                 _worst(res, sub, w, predmp, meas, kmp)
                 res.fraction = float(np.mean(inner_bad & np.isfinite(k64) | ~fin64)) if n else 0.0
                 return res
@@ -379,13 +381,16 @@ def _attribute(res: Analysis, nodes: list[Node], steps: dict[int, list[np.ndarra
 
 
 def _first_nonfinite(nodes: list[Node], v64: dict[int, np.ndarray], w: int) -> int | None:
-    for k, node in enumerate(nodes):
-        v = v64.get(id(node))
-        if v is None:
-            continue
-        args_ok = all(np.isfinite(v64[id(a)][w]) and v64[id(a)][w] != 0 if id(a) in v64 else True for a in node.args)
-        if args_ok and (np.isinf(v[w]) or (v[w] == 0 and node.kind in ("mul", "div", "exp", "pow", "square"))):
-            return k
+    """The first operation that overflows (or, failing that, underflows) from finite non-zero operands."""
+    for want_inf in (True, False):
+        for k, node in enumerate(nodes):
+            v = v64.get(id(node))
+            if v is None:
+                continue
+            args_ok = all(np.isfinite(v64[id(a)][w]) and v64[id(a)][w] != 0 for a in node.args if id(a) in v64)
+            hit = np.isinf(v[w]) if want_inf else (v[w] == 0 and node.kind in ("mul", "div", "exp", "pow", "square"))
+            if args_ok and hit:
+                return k
     return None
 
 
