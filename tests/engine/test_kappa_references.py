@@ -70,3 +70,15 @@ def test_kappa_is_exact_even_where_binary64_derivatives_cancel():
         x = mpmath.mpf(1e12)
         expected = float(x / (2 * mpmath.sqrt(x) * mpmath.sqrt(x + 1)))
     assert kappa == pytest.approx(expected, rel=1e-6)
+
+
+def test_kappa_of_any_subexpression_over_the_site_inputs():
+    # Each node is a function of the site's inputs: κ of the subexpression sqrt(x + 1) is
+    # x / (2 (x + 1)) (derivable; common practice), evaluated over the site's declared range.
+    src = "import math\ndef f(x):  # condhint: x in [3.0, 3.0]\n    return math.sqrt(x + 1) - math.sqrt(x)\n"
+    mod = analyse_module(src, "t.py", Config(), cache=None)
+    (site,) = mod.sites
+    sub = site.root.args[0]
+    assert sub.text == "math.sqrt(x + 1)"
+    a = analyse(site, Config(), root=sub)
+    assert a.kappa == pytest.approx(3.0 / (2 * 4.0), rel=1e-9)
