@@ -5,7 +5,7 @@ import fnmatch
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import TYPE_CHECKING, Iterable, Iterator
+from typing import TYPE_CHECKING, Callable, Iterable, Iterator
 
 from condhint.config import Config
 from condhint.engine import ModuleAnalysis, analyse_module
@@ -95,12 +95,20 @@ def check_target(target: Target, cfg: Config, fixes: bool = False) -> FileReport
     return analysis.report
 
 
-def attach_fixes(analysis: ModuleAnalysis, cfg: Config) -> None:
+def rewrite_search() -> Callable[..., Iterable] | None:
+    """`condhint.rewrites.fixes_for`, or None where the rewrites package is not installed (yet)."""
     try:
         from condhint.rewrites import fixes_for
-    except ModuleNotFoundError as exc:
-        if exc.name and not exc.name.startswith("condhint.rewrites"):
-            raise
+    except ImportError as exc:
+        if isinstance(exc, ModuleNotFoundError) and exc.name and not exc.name.startswith("condhint.rewrites"):
+            raise  # a dependency of the rewrites is missing: say so
+        return None
+    return fixes_for
+
+
+def attach_fixes(analysis: ModuleAnalysis, cfg: Config) -> None:
+    fixes_for = rewrite_search()
+    if fixes_for is None:
         return
     for f in analysis.report.findings:
         if f.category == "formula" and not f.fixes:

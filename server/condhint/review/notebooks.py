@@ -122,25 +122,17 @@ def _relocate(f: Finding, where: list[tuple[int, int, int]], path: str) -> Noteb
     return out
 
 
-def check_notebook(path: Path, shown: str, cfg: Config) -> FileReport:
-    t0 = time.perf_counter()
-    try:
-        cells = read_cells(path)
-    except (OSError, ValueError) as exc:
-        rep = FileReport(shown, "error", message=str(exc))
-        rep.findings.append(not_analysed(shown, Span(1, 0, 1, 1), f"{shown}: {exc}"))
-        return rep
-    report = FileReport(shown, "ok")
+def join_cells(cells: list[CodeCell], shown: str) -> tuple[str, list[tuple[int, int, int]], list[Finding]]:
+    """The code cells that parse, joined: (text, [(first joined line, lines, cell)], CH001 of the others)."""
     where: list[tuple[int, int, int]] = []
     parts: list[str] = []
-    line = 1
     bad: list[Finding] = []
+    line = 1
     for cell in cells:
         if not cell.code.strip():
             continue
-        tree, err = parse(cell.code)
+        _, err = parse(cell.code)
         if err is not None:
-            report.status = "syntax-error"
             err.path = shown
             values = {fl.name: getattr(err, fl.name) for fl in fields(Finding)}
             bad.append(NotebookFinding(**values, cell=cell.number))
@@ -150,9 +142,32 @@ def check_notebook(path: Path, shown: str, cfg: Config) -> FileReport:
         where.append((line, count, cell.number))
         parts.append(code)
         line += count
+    return "".join(parts), where, bad
+
+
+def joined_line(where: list[tuple[int, int, int]], cell: int, line: int) -> int | None:
+    """The line of the joined text for `line` of `cell`."""
+    for first, count, number in where:
+        if number == cell and 1 <= line <= count:
+            return first + line - 1
+    return None
+
+
+def check_notebook(path: Path, shown: str, cfg: Config) -> FileReport:
+    t0 = time.perf_counter()
+    try:
+        cells = read_cells(path)
+    except (OSError, ValueError) as exc:
+        rep = FileReport(shown, "error", message=str(exc))
+        rep.findings.append(not_analysed(shown, Span(1, 0, 1, 1), f"{shown}: {exc}"))
+        return rep
+    report = FileReport(shown, "ok")
+    text, where, bad = join_cells(cells, shown)
+    if bad:
+        report.status = "syntax-error"
     report.lines = sum(c.text.count("\n") + 1 for c in cells)
-    if parts:
-        analysis = analyse_module("".join(parts), shown, cfg)
+    if text:
+        analysis = analyse_module(text, shown, cfg)
         report.findings = [_relocate(f, where, shown) for f in analysis.report.findings]
         report.suppressed = [_relocate(f, where, shown) for f in analysis.report.suppressed]
         if analysis.report.status != "ok":

@@ -1,0 +1,107 @@
+"""Figures of one expression at chosen points: κ, predicted and measured digits lost, rounding contributions.
+
+This is the analysis of `numeric.analysis` evaluated at every point shown (not only a refined subset):
+binary64 values against the mpmath reference, adjoints in mpmath for κ and the rounding amplification.
+The points sweep one input over its range with the others held at the worst case, which makes a table and
+a curve a reader can follow.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import mpmath
+import numpy as np
+
+from condhint.config import Config
+from condhint.expr import INPUT, Node, topological
+from condhint.numeric.analysis import _digits, _metrics, _reference, _relerr, _rounds
+from condhint.numeric.backends import F64_BACKEND, MP_BACKEND
+from condhint.numeric.evaluate import Deadline, forward, reverse
+from condhint.numeric.sampling import points
+from condhint.site import Site
+
+
+@dataclass
+class Profile:
+    names: list[str]
+    cols: dict[str, np.ndarray]  # the points, one column per input
+    kappa: np.ndarray
+    predicted: np.ndarray  # digits, from the rounding amplification A
+    measured: np.ndarray  # digits, binary64 against the reference
+    value: np.ndarray  # the reference value (as float)
+    terms: dict[int, np.ndarray] = field(default_factory=dict)  # node index -> amplification of its rounding
+    nodes: list[Node] = field(default_factory=list)
+
+    @property
+    def n(self) -> int:
+        return len(self.kappa)
+
+
+def input_names(root: Node) -> list[str]:
+    return sorted({n.name for n in topological(root) if n.kind == INPUT})  # type: ignore[misc]
+
+
+def swept_input(names: list[str], bounds: dict[str, tuple[float, float]]) -> str | None:
+    """The input the figures are shown against: the one whose range spans the most decades (else the widest)."""
+    def spread(name: str) -> tuple[float, float]:
+        lo, hi = bounds[name]
+        decades = math.log10(hi / lo) if lo > 0 and hi > lo else (math.log10(lo / hi) if hi < 0 and lo < hi else 0)
+        return (decades, hi - lo)
+
+    varying = [n for n in names if bounds[n][0] != bounds[n][1]]
+    return max(varying, key=spread) if varying else None
+
+
+def sweep(names: list[str], bounds: dict[str, tuple[float, float]], held: dict[str, float], swept: str | None,
+          n: int, is_int: set[str]) -> dict[str, np.ndarray]:
+    """`n` points over the swept input's range (log-spaced across decades), the other inputs at `held`."""
+    if swept is None:
+        return {k: np.full(1, held[k]) for k in names}
+    xs = points(*bounds[swept], n)
+    if swept in is_int:
+        xs = np.unique(np.round(xs))
+    else:
+        xs = np.unique(xs)
+    return {k: xs.astype(float) if k == swept else np.full(len(xs), float(held[k])) for k in names}
+
+
+def keep_where_guards_hold(site: Site, cols: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """Drop the points where a guard or branch on a computed value says the code does not run."""
+    n = len(next(iter(cols.values()))) if cols else 0
+    for flt in site.filters:
+        cnodes = topological(flt.condition)
+        if not {x.name for x in cnodes if x.kind == INPUT} <= set(cols):
+            continue
+        with np.errstate(all="ignore"):
+            cv = forward(cnodes, cols, F64_BACKEND, n)[id(flt.condition)]
+        keep = np.asarray(cv, dtype=bool) == flt.holds
+        if keep.any():
+            cols = {k: v[keep] for k, v in cols.items()}
+            n = int(keep.sum())
+    return cols
+
+
+def profile(root: Node, cols: dict[str, np.ndarray], cfg: Config, seconds: float = 20.0) -> Profile:
+    """Evaluate `root` at the points `cols` (which must name all of its inputs)."""
+    nodes = topological(root)
+    names = input_names(root)
+    n = len(next(iter(cols.values()))) if cols else 1
+    cols = {k: np.asarray(cols[k], dtype=float) for k in names}
+    u = cfg.unit_roundoff
+    total = -math.log10(u)
+    rounding = [i for i, node in enumerate(nodes) if _rounds(node)]
+    deadline = Deadline(seconds)
+    with np.errstate(all="ignore"):
+        r64 = np.asarray(forward(nodes, cols, F64_BACKEND, n, deadline)[id(root)], dtype=float)
+        vmp, dps = _reference(nodes, cols, n, deadline)
+        with mpmath.workdps(dps):
+            adj, _ = reverse(nodes, vmp, MP_BACKEND, deadline)
+            kappa, _, amp, terms = _metrics(nodes, vmp, adj, names, rounding, MP_BACKEND)
+            ref = vmp[id(root)]
+            err = np.array([_relerr(float(a), b) for a, b in zip(r64, ref)], dtype=float)
+            value = np.array([float(v) if not (mpmath.isnan(v) or mpmath.isinf(v)) else math.nan for v in ref])
+        measured = _digits(err / u, total)
+        measured[np.isnan(err)] = np.nan  # undefined or zero reference: nothing to measure
+        return Profile(names, cols, np.asarray(kappa, dtype=float), _digits(amp, total), measured, value,
+                       {k: np.asarray(v, dtype=float) for k, v in terms.items()}, nodes)
