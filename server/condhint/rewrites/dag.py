@@ -8,7 +8,7 @@ from __future__ import annotations
 import math
 from fractions import Fraction
 
-from condhint.expr import CONST, INPUT, SELECT, Node, topological
+from condhint.expr import CONST, INPUT, SELECT, Node, Span, topological
 
 
 # ---- construction ------------------------------------------------------------------------------------------
@@ -140,10 +140,12 @@ def difference(node: Node) -> tuple[Node, Node] | None:
     return None
 
 
-def product_factors(node: Node) -> list[Node]:
-    """The factors of a chain of multiplications (a*b*c -> [a, b, c])."""
-    if node.kind == "mul":
-        return product_factors(node.args[0]) + product_factors(node.args[1])
+def product_factors(node: Node, within: "Span | None" = None) -> list[Node]:
+    """The factors of a chain of multiplications (a*b*c -> [a, b, c]), written in one place: a product
+    inlined from another statement (a named value) stays one factor."""
+    within = within or node.span
+    if node.kind == "mul" and (node.span is None or within is None or within.contains(node.span)):
+        return product_factors(node.args[0], within) + product_factors(node.args[1], within)
     return [node]
 
 

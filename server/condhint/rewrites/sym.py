@@ -189,16 +189,19 @@ def count_ops(e: Any) -> int:
 
 
 def is_zero(expr: Any) -> bool:
-    """Whether sympy can show `expr` is identically zero (run under a time budget)."""
+    """Whether sympy can show `expr` is identically zero (run it under a time budget)."""
     if expr == 0:
         return True
-    for attempt in (sp.expand, sp.simplify):
+    attempts: tuple[Callable[[Any], Any], ...] = (
+        sp.expand, lambda e: sp.simplify(e.rewrite(sp.log)) if e.has(sp.asinh, sp.acosh, sp.atanh) else e,
+        sp.simplify)
+    for attempt in attempts:
         try:
             if attempt(expr) == 0:
                 return True
-        except (TypeError, ValueError, NotImplementedError, RecursionError):
+        except (TypeError, ValueError, NotImplementedError, RecursionError, AttributeError):
             return False
     try:
         return bool(expr.equals(0))
-    except (TypeError, ValueError, NotImplementedError, RecursionError):
+    except (TypeError, ValueError, NotImplementedError, RecursionError, AttributeError):
         return False

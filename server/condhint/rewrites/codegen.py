@@ -1,0 +1,296 @@
+"""Python text for a candidate DAG, in the style of the file it goes into.
+
+- functions are spelled the way the file already spells them: `np.expm1` under `import numpy as np`,
+  `expm1` when the site calls bare names from `from math import …` (the name is added to that line),
+  `math.expm1` otherwise (adding `import math` if needed); a name that would clash is never imported;
+- original sub-expressions keep their text, and names bound on earlier lines are written as those names;
+- parentheses only where Python's precedence (or the DAG's evaluation order) needs them;
+- an unknown call among the inputs is never written more often than the original writes it.
+"""
+from __future__ import annotations
+
+import ast
+from collections import Counter
+from dataclasses import dataclass, field
+from typing import Callable
+
+from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, topological
+from condhint.numeric.functions import FUNCTIONS
+
+# Python precedence levels (higher binds tighter).
+SELECT_P, COMPARE_P, ADD_P, MUL_P, UNARY_P, POW_P, ATOM_P = 1, 6, 11, 12, 13, 14, 16
+_BINOP_P = {ast.Add: ADD_P, ast.Sub: ADD_P, ast.Mult: MUL_P, ast.Div: MUL_P, ast.FloorDiv: MUL_P, ast.Mod: MUL_P,
+            ast.MatMult: MUL_P, ast.Pow: POW_P, ast.BitOr: 7, ast.BitXor: 8, ast.BitAnd: 9, ast.LShift: 10,
+            ast.RShift: 10}
+_OPS = {"add": (" + ", ADD_P), "sub": (" - ", ADD_P), "mul": (" * ", MUL_P), "div": (" / ", MUL_P)}
+
+_SAME_NAME = ("sqrt", "exp", "expm1", "log", "log1p", "log2", "log10", "sin", "cos", "tan", "sinh", "cosh", "tanh",
+              "hypot", "copysign", "floor", "ceil")
+SPELLINGS: dict[str, dict[str, str]] = {
+    "math": {**{f: f for f in _SAME_NAME}, "asinh": "asinh", "acosh": "acosh", "atanh": "atanh", "asin": "asin",
+             "acos": "acos", "atan": "atan", "atan2": "atan2", "erf": "erf", "erfc": "erfc"},
+    "numpy": {**{f: f for f in _SAME_NAME}, "asinh": "arcsinh", "acosh": "arccosh", "atanh": "arctanh",
+              "asin": "arcsin", "acos": "arccos", "atan": "arctan", "atan2": "arctan2", "logaddexp": "logaddexp",
+              "exp2": "exp2", "cbrt": "cbrt", "max": "maximum", "min": "minimum"},
+}
+CONSTANT_NAMES = {"pi", "e", "tau", "inf"}
+
+
+class Unspellable(Exception):
+    """The candidate needs something this file cannot say without a new third-party import, or would repeat
+    a call with possible side effects."""
+
+
+def precedence(text: str) -> int:
+    """How tightly an expression's text binds, from its syntax tree (multi-line text is parenthesised)."""
+    tree = ast.parse(text.strip(), mode="eval").body
+    if isinstance(tree, ast.BinOp):
+        return _BINOP_P[type(tree.op)]
+    if isinstance(tree, ast.UnaryOp):
+        return 4 if isinstance(tree.op, ast.Not) else UNARY_P
+    if isinstance(tree, ast.Compare):
+        return COMPARE_P
+    if isinstance(tree, ast.BoolOp):
+        return 3 if isinstance(tree.op, ast.And) else 2
+    if isinstance(tree, ast.IfExp):
+        return SELECT_P
+    if isinstance(tree, (ast.Lambda, ast.NamedExpr)):
+        return 0
+    return ATOM_P
+
+
+def is_expression(text: str) -> bool:
+    try:
+        ast.parse(text.strip(), mode="eval")
+        return True
+    except SyntaxError:
+        return False
+
+
+@dataclass
+class Style:
+    """A module's imports, read from its syntax tree."""
+
+    aliases: dict[str, str] = field(default_factory=dict)  # module -> local alias (`import numpy as np`)
+    alias_module: dict[str, str] = field(default_factory=dict)  # local alias -> module
+    from_imports: dict[str, dict[str, str]] = field(default_factory=dict)  # module -> attr -> local name
+    local_module: dict[str, str] = field(default_factory=dict)  # bare local name -> module
+    bound: set[str] = field(default_factory=set)  # names bound other than by these imports
+
+    @classmethod
+    def of(cls, tree: ast.Module) -> "Style":
+        s = cls()
+        for node in ast.walk(tree):
+            if isinstance(node, ast.Import):
+                for a in node.names:
+                    mod = {"numpy": "numpy", "math": "math"}.get(a.name)
+                    if mod is not None:
+                        s.aliases.setdefault(mod, a.asname or a.name)
+                        s.alias_module[a.asname or a.name] = mod
+                    else:
+                        s.bound.add((a.asname or a.name).split(".")[0])
+            elif isinstance(node, ast.ImportFrom):
+                mod = node.module if node.module in ("math", "numpy") and node.level == 0 else None
+                for a in node.names:
+                    local = a.asname or a.name
+                    if mod is not None and a.name != "*":
+                        s.from_imports.setdefault(mod, {})[a.name] = local
+                        s.local_module[local] = mod
+                    else:
+                        s.bound.add(local)
+            elif isinstance(node, ast.Name) and isinstance(node.ctx, (ast.Store, ast.Del)):
+                s.bound.add(node.id)
+            elif isinstance(node, (ast.FunctionDef, ast.AsyncFunctionDef, ast.ClassDef)):
+                s.bound.add(node.name)
+            elif isinstance(node, ast.arg):
+                s.bound.add(node.arg)
+        return s
+
+
+class Spelling:
+    """How one site spells functions; collects the import statements the spellings need."""
+
+    def __init__(self, style: Style, module: str, from_style: bool) -> None:
+        self.style = style
+        self.module = module
+        self.from_style = from_style
+        self.imports: list[str] = []
+
+    @classmethod
+    def for_site(cls, style: Style, nodes: list[Node]) -> "Spelling":
+        """The module and import style the site's own calls use (the file's imports when it calls none)."""
+        seen: Counter[tuple[str, bool]] = Counter()
+        for node in nodes:
+            if node.kind in FUNCTIONS and node.kind not in _OPS and "(" in node.text and node.text.endswith(")"):
+                callee = node.text[: node.text.index("(")].strip()
+                if "." in callee:
+                    mod = style.alias_module.get(callee.rsplit(".", 1)[0])
+                    if mod:
+                        seen[(mod, False)] += 1
+                elif callee in style.local_module:
+                    seen[(style.local_module[callee], True)] += 1
+        if seen:
+            (module, from_style), _ = seen.most_common(1)[0]
+            return cls(style, module, from_style)
+        module = "numpy" if "numpy" in style.aliases and "math" not in style.aliases and \
+            "math" not in style.from_imports else "math"
+        from_style = module in style.from_imports and module not in style.aliases
+        return cls(style, module, from_style)
+
+    @property
+    def array_style(self) -> bool:
+        return self.module == "numpy"
+
+    def _need(self, statement: str) -> None:
+        if statement not in self.imports:
+            self.imports.append(statement)
+
+    def function(self, fid: str) -> str:
+        if fid == "abs" or (fid in ("min", "max") and not self.array_style):
+            return fid
+        other = "math" if self.module == "numpy" else "numpy"
+        for mod in (self.module, other):
+            attr = SPELLINGS[mod].get(fid)
+            if attr is None:
+                continue
+            if mod == self.module and self.from_style:
+                local = self.style.from_imports.get(mod, {}).get(attr)
+                if local is not None:
+                    return local
+                if attr not in self.style.bound and attr not in self.style.local_module:
+                    self._need(f"from {mod} import {attr}")
+                    return attr
+            alias = self.style.aliases.get(mod)
+            if alias is not None:
+                return f"{alias}.{attr}"
+            local = self.style.from_imports.get(mod, {}).get(attr)
+            if local is not None:
+                return local
+            if mod == "math" and "math" not in self.style.bound and "math" not in self.style.local_module:
+                self._need("import math")
+                return f"math.{attr}"
+        raise Unspellable(f"no spelling of {fid} in this file")
+
+    def where(self) -> str:
+        """numpy's elementwise choice, for piecewise rewrites of array code."""
+        alias = self.style.aliases.get("numpy")
+        if alias is not None:
+            return f"{alias}.where"
+        local = self.style.from_imports.get("numpy", {}).get("where")
+        if local is not None:
+            return local
+        raise Unspellable("np.where without numpy")
+
+    def constant(self, name: str) -> str:
+        mod = self.module
+        local = self.style.from_imports.get(mod, {}).get(name)
+        if local is not None:
+            return local
+        alias = self.style.aliases.get(mod) or self.style.aliases.get("math")
+        if alias is None:
+            self._need("import math")
+            alias = "math"
+        return f"{alias}.{name}"
+
+
+class Emitter:
+    """Writes a DAG as Python source. `reuse(node)` gives the original text of an untouched node (or None);
+    `names` maps nodes to the names they are bound to where the code is edited."""
+
+    def __init__(self, spelling: Spelling, reuse: Callable[[Node], str | None], names: dict[int, str]) -> None:
+        self.spelling = spelling
+        self.reuse = reuse
+        self.names = names
+
+    def text(self, node: Node) -> tuple[str, int]:
+        return self._emit(node)
+
+    def _emit(self, node: Node) -> tuple[str, int]:
+        if id(node) in self.names:
+            return self.names[id(node)], ATOM_P
+        original = self.reuse(node)
+        if original is not None:
+            return _wrapped(original)
+        if node.kind == INPUT:
+            return _wrapped(node.text or node.name or "")
+        if node.kind == CONST:
+            return self._const(node)
+        if node.kind in _OPS:
+            sym, p = _OPS[node.kind]
+            (ta, pa), (tb, pb) = self._emit(node.args[0]), self._emit(node.args[1])
+            return f"{_par(ta, pa < p)}{sym}{_par(tb, pb <= p)}", p
+        if node.kind == "pow":
+            (ta, pa), (tb, pb) = self._emit(node.args[0]), self._emit(node.args[1])
+            return f"{_par(ta, pa <= POW_P)} ** {_par(tb, pb < UNARY_P)}", POW_P
+        if node.kind == "neg":
+            ta, pa = self._emit(node.args[0])
+            return f"-{_par(ta, pa < UNARY_P or ta.startswith('-'))}", UNARY_P
+        if node.kind == "square":
+            ta, pa = self._emit(node.args[0])
+            return f"{_par(ta, pa <= POW_P)} ** 2", POW_P
+        if node.kind == "reciprocal":
+            ta, pa = self._emit(node.args[0])
+            return f"1 / {_par(ta, pa <= MUL_P)}", MUL_P
+        if node.kind == COMPARE:
+            (ta, pa), (tb, pb) = self._emit(node.args[0]), self._emit(node.args[1])
+            return f"{_par(ta, pa <= COMPARE_P)} {node.name} {_par(tb, pb <= COMPARE_P)}", COMPARE_P
+        if node.kind == SELECT:
+            c, a, b = (self._emit(x) for x in node.args)
+            if self.spelling.array_style:
+                return f"{self.spelling.where()}({c[0]}, {a[0]}, {b[0]})", ATOM_P
+            return f"{_par(a[0], a[1] <= SELECT_P)} if {_par(c[0], c[1] <= SELECT_P)} else {b[0]}", SELECT_P
+        if node.kind in FUNCTIONS:
+            name = self.spelling.function(node.kind)
+            args = ", ".join(_par(t, p < SELECT_P) for t, p in (self._emit(a) for a in node.args))
+            return f"{name}({args})", ATOM_P
+        raise Unspellable(f"cannot write {node.kind}")
+
+    def _const(self, node: Node) -> tuple[str, int]:
+        if node.text and is_expression(node.text):
+            return _wrapped(node.text)
+        exact = node.exact or repr(node.value)
+        core = exact.lstrip("-")
+        negative = exact.startswith("-")
+        if core in CONSTANT_NAMES:
+            text = self.spelling.constant(core)
+        elif "/" in core:
+            num, den = core.split("/")
+            d = int(den)
+            if d & (d - 1) == 0:
+                text = repr(int(num) / d)
+            else:
+                return (f"-{num} / {den}" if negative else f"{num} / {den}"), MUL_P
+        else:
+            text = core
+        return (f"-{text}", UNARY_P) if negative else (text, ATOM_P)
+
+
+def _wrapped(text: str) -> tuple[str, int]:
+    if "\n" in text:
+        return f"({text})", ATOM_P
+    return text, precedence(text)
+
+
+def _par(text: str, needed: bool) -> str:
+    return f"({text})" if needed else text
+
+
+def call_inputs(root: Node) -> list[str]:
+    """Texts of inputs that are calls of unknown functions (they may have side effects)."""
+    out = []
+    for n in topological(root):
+        if n.kind == INPUT and n.text and "(" in n.text:
+            try:
+                tree = ast.parse(n.text, mode="eval")
+            except SyntaxError:
+                continue
+            if any(isinstance(x, ast.Call) for x in ast.walk(tree)):
+                out.append(n.text)
+    return out
+
+
+def check_side_effects(original_text: str, replacement: str, root: Node) -> None:
+    """Refuse a replacement that writes an unknown call more often than the original does."""
+    for text in call_inputs(root):
+        if replacement.count(text) > original_text.count(text):
+            raise Unspellable(f"the rewrite would call {text} more than once")

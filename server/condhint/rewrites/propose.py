@@ -1,0 +1,259 @@
+"""Verified fixes for one finding: targets, candidates, verification, code, and a last re-analysis.
+
+For a finding the targets are the operation where digits are lost and the operations around it (up to
+`ANCESTORS` levels up, within what can be replaced as one piece of text). Named rules are tried on every
+target first; only when none gives a verified candidate does the general search run. Each candidate is
+verified on the site's own samples (`verify.Bench.judge`); the survivors are written in the file's style,
+and the best ones are checked once more by re-analysing the patched file: the loss must be gone and no
+new finding may appear.
+"""
+from __future__ import annotations
+
+import ast
+import time
+from collections import Counter
+from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING, Iterator
+
+from condhint.config import Config
+from condhint.expr import INPUT, SELECT, Node, topological
+from condhint.findings import Finding, Fix
+from condhint.numeric.evaluate import Deadline
+from condhint.rewrites import codegen, dag, search
+from condhint.rewrites.apply import apply_fixes
+from condhint.rewrites.context import Context
+from condhint.rewrites.rules import RULES
+from condhint.rewrites.verify import NOISE, Bench, Evidence
+from condhint.site import Site
+
+if TYPE_CHECKING:
+    from condhint.engine import AnalysisCache, ModuleAnalysis
+
+FIXABLE = ("formula", "overflow", "domain")
+ANCESTORS = 4
+SECONDS_PER_FINDING = 2.0
+RECHECKED = 3  # how many of the best candidates are re-analysed at most
+
+
+@dataclass
+class Verified:
+    rule: str
+    title: str
+    target: Node
+    replacement: Node
+    text: str
+    imports: list[str]
+    evidence: Evidence
+    cost: int
+    order: int
+
+    def rank(self) -> tuple[float, int, int, int]:
+        return (round(max(self.evidence.after, NOISE) * 2) / 2, self.cost, self.order, len(self.text))
+
+    def fix(self) -> Fix:
+        ev = self.evidence
+        title = f"{self.title} (loses {ev.after:.1f} instead of {ev.before:.1f} digits)"
+        return Fix(title=title, replacement=self.text, span=self.target.span, imports=list(self.imports),  # type: ignore[arg-type]
+                   measured_digits_lost_after=ev.after, measured_digits_lost_before=ev.before, rule=self.rule,
+                   proven=ev.proven)
+
+
+class Writer:
+    """Code for candidates replacing one target, in the file's style and with the names visible there."""
+
+    def __init__(self, ma: "ModuleAnalysis", site: Site, target: Node) -> None:
+        assert ma.source is not None and ma.walker is not None and target.span is not None
+        self.source = ma.source
+        self.target = target
+        self.style = codegen.Style.of(ma.walker.tree)
+        self.site_nodes = topological(site.root)
+        self.names = visible_names(ma, site, target)
+
+    def reuse(self, node: Node) -> str | None:
+        if node.kind == INPUT or node.span is None or not node.text or node is self.target:
+            return None
+        if not self.target.span.contains(node.span) or self.source.segment(node.span) != node.text:  # type: ignore[union-attr]
+            return None
+        return node.text if codegen.is_expression(node.text) else None
+
+    def write(self, replacement: Node) -> tuple[str, list[str]]:
+        spelling = codegen.Spelling.for_site(self.style, self.site_nodes)
+        text, prec = codegen.Emitter(spelling, self.reuse, self.names).text(replacement)
+        if prec < codegen.precedence(self.target.text):
+            text = f"({text})"
+        codegen.check_side_effects(self.target.text, text, replacement)
+        ast.parse(text, mode="eval")
+        return text, spelling.imports
+
+
+def visible_names(ma: "ModuleAnalysis", site: Site, target: Node) -> dict[int, str]:
+    """Nodes bound to a name on an earlier line that still holds it where `target` is, and module constants."""
+    assert target.span is not None and ma.walker is not None
+    line = target.span.line
+    stores = _stores(ma.walker.tree)
+    out: dict[int, str] = {}
+    for key, b in site.bindings_by_node.items():
+        if b.line < line and not any(b.line < ln < line for ln in stores.get(b.name, ())) and not (
+                b.span.line <= line <= b.span.end_line):
+            out[key] = b.name
+    for name, node in ma.walker.module_constants.items():
+        if node.span is not None and node.span.line != line:
+            out.setdefault(id(node), name)
+    out.pop(id(target), None)
+    return out
+
+
+def _stores(tree: ast.Module) -> dict[str, list[int]]:
+    out: dict[str, list[int]] = {}
+    for n in ast.walk(tree):
+        if isinstance(n, ast.Name) and isinstance(n.ctx, ast.Store):
+            out.setdefault(n.id, []).append(n.lineno)
+    return out
+
+
+def targets(site: Site, finding: Finding, culprit: Node | None, source_text_ok) -> list[Node]:  # type: ignore[no-untyped-def]
+    """The flagged operation and the operations using it, nearest first."""
+    nodes = topological(site.root)
+    start = culprit if culprit is not None and culprit.span == finding.span else next(
+        (n for n in reversed(nodes) if n.span == finding.span), None)
+    if start is None:
+        return []
+    parents: dict[int, list[Node]] = {}
+    for n in nodes:
+        for a in n.args:
+            parents.setdefault(id(a), []).append(n)
+    out, frontier, seen = [], [start], {id(start)}
+    for _ in range(ANCESTORS + 1):
+        nxt: list[Node] = []
+        for n in frontier:
+            if source_text_ok(n):
+                out.append(n)
+            for p in parents.get(id(n), []):
+                if id(p) not in seen and p.kind != SELECT:
+                    seen.add(id(p))
+                    nxt.append(p)
+        frontier = nxt
+    return out
+
+
+@dataclass
+class Proposal:
+    rule: str
+    title: str
+    target: Node
+    replacement: Node
+    cost: int
+    order: int
+    approximate: bool = False
+
+
+def _named(tgts: list[Node], ctx_for) -> Iterator[Proposal]:  # type: ignore[no-untyped-def]
+    for t in tgts:
+        ctx = ctx_for(t)
+        for order, rule in enumerate(RULES):
+            for cand in rule.candidates(t, ctx):
+                extra = 2 if any(n.kind == SELECT for n in topological(cand)) else 0
+                yield Proposal(rule.id, rule.title, t, cand, rule.cost + extra, order)
+
+
+def _searched(tgts: list[Node], ctx_for, deadline: Deadline) -> Iterator[Proposal]:  # type: ignore[no-untyped-def]
+    base = len(RULES)
+    for t in tgts:
+        ctx = ctx_for(t)
+        for k, found in enumerate(search.transformed(t, ctx, deadline)):
+            yield Proposal(found.rule, found.title, t, found.replacement, 3, base + k)
+    for t in tgts:
+        for found in search.series(t, ctx_for(t), deadline):
+            yield Proposal(found.rule, found.title, t, found.replacement, 4, base + 10, True)
+
+
+def fixes_for(finding: Finding, ma: "ModuleAnalysis", cfg: Config, cache: "AnalysisCache | None" = None,
+              seconds: float = SECONDS_PER_FINDING) -> list[Fix]:
+    """Verified fixes for one finding, best first (empty when none is verified)."""
+    site: Site | None = getattr(finding, "_site", None)
+    if site is None or finding.category not in FIXABLE or ma.source is None or ma.walker is None:
+        return []
+    deadline = Deadline(seconds)
+    analysis = ma.analyses.get(id(site))
+    nodes = topological(site.root)
+    culprit = nodes[analysis.culprit] if analysis is not None and analysis.culprit is not None else None
+    source = ma.source
+
+    def replaceable(n: Node) -> bool:
+        return n.span is not None and bool(n.text) and source.segment(n.span) == n.text and \
+            codegen.is_expression(n.text)
+
+    tgts = targets(site, finding, culprit, replaceable)
+    if not tgts:
+        return []
+    bench = Bench(site, cfg, finding.worst_at)
+    writers: dict[int, Writer] = {}
+    contexts: dict[int, Context] = {}
+
+    def writer(t: Node) -> Writer:
+        if id(t) not in writers:
+            writers[id(t)] = Writer(ma, site, t)
+        return writers[id(t)]
+
+    def ctx_for(t: Node) -> Context:
+        if id(t) not in contexts:
+            contexts[id(t)] = Context(bench, set(writer(t).names))
+        return contexts[id(t)]
+
+    verified: list[Verified] = []
+    seen: set[tuple[int, str]] = set()
+    for stage in (lambda: _named(tgts, ctx_for), lambda: _searched(tgts, ctx_for, deadline)):
+        for p in stage():
+            if deadline.at is not None and time.perf_counter() > deadline.at:
+                break
+            try:
+                text, imports = writer(p.target).write(p.replacement)
+            except (codegen.Unspellable, SyntaxError, ValueError, RecursionError):
+                continue
+            if (id(p.target), text) in seen or text == p.target.text:
+                continue
+            seen.add((id(p.target), text))
+            cand_root = dag.substitute(site.root, p.target, p.replacement)
+            ev = bench.judge(p.target, p.replacement, cand_root, p.approximate, deadline)
+            if ev.ok:
+                verified.append(Verified(p.rule, p.title, p.target, p.replacement, text, imports, ev, p.cost,
+                                         p.order))
+        if verified:
+            break
+    verified.sort(key=Verified.rank)
+    return _rechecked(verified, finding, ma, cfg, cache)
+
+
+def _fixable_findings(findings: list[Finding]) -> Counter[tuple[str, str, str]]:
+    return Counter((f.code, f.scope, " ".join(f.expression.split())) for f in findings if f.category in FIXABLE)
+
+
+def _rechecked(verified: list[Verified], finding: Finding, ma: "ModuleAnalysis", cfg: Config,
+               cache: "AnalysisCache | None") -> list[Fix]:
+    """Fixes whose patched file re-analyses without the loss and without any new finding."""
+    from condhint.engine import DEFAULT_CACHE, analyse_module
+
+    assert ma.source is not None
+    before = _fixable_findings(ma.report.findings)
+    quiet = replace(cfg, kappa_formula=False)
+    out: list[Fix] = []
+    for v in verified[:RECHECKED]:
+        fix = v.fix()
+        try:
+            patched = apply_fixes(ma.source.text, [fix])
+        except ValueError:
+            continue
+        again = analyse_module(patched, ma.report.path, quiet, cache if cache is not None else DEFAULT_CACHE)
+        if again.report.status != "ok":
+            continue
+        if _fixable_findings(again.report.findings) - before:
+            continue
+        out.append(fix)
+    return out
+
+
+def attach_fixes(ma: "ModuleAnalysis", cfg: Config, cache: "AnalysisCache | None" = None) -> None:
+    """Give every formula, overflow and domain finding of the module its verified fixes."""
+    for f in ma.report.findings:
+        if f.category in FIXABLE and getattr(f, "_site", None) is not None:
+            f.fixes = fixes_for(f, ma, cfg, cache)

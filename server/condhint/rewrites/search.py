@@ -1,0 +1,246 @@
+"""The general search, for losses no named rule covers.
+
+1. sympy transformations of the target (together, cancel, factor, radsimp, trigsimp), each followed by
+   sympy's c99 rewrites (expm1, log1p…), under a time budget;
+2. where no closed form removes the loss: the Taylor series of the target in one variable about 0, used
+   where the argument is small. The number of terms and the switch point are chosen by measurement: the
+   series is used up to the largest argument where its truncation error stays below u/8, and the original
+   formula beyond it.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from fractions import Fraction
+from typing import Any, Iterator
+
+import mpmath
+import numpy as np
+import sympy as sp
+from sympy.codegen import rewriting as sr
+
+from condhint.budget import OverBudget, run_with_budget
+from condhint.expr import CONST, INPUT, Node, topological
+from condhint.numeric.analysis import _reference
+from condhint.numeric.backends import F64_BACKEND
+from condhint.numeric.evaluate import BudgetExceeded, Deadline, forward
+from condhint.rewrites import dag, sym
+from condhint.rewrites.context import Context
+
+TRANSFORMS: tuple[tuple[str, str], ...] = (
+    ("together", "Combine into one fraction"),
+    ("cancel", "Cancel common factors"),
+    ("factor", "Factor the expression"),
+    ("radsimp", "Rationalise the square roots"),
+    ("trigsimp", "Simplify the trigonometric expression"),
+)
+MAX_TERMS = 8
+SERIES_VAR = "__series_arg"
+
+
+@dataclass
+class Found:
+    rule: str
+    title: str
+    replacement: Node
+    approximate: bool = False
+
+
+def _transform(name: str, expr: Any) -> Any:
+    out = getattr(sp, name)(expr)
+    return sr.optimize(out, sr.optims_c99)
+
+
+def transformed(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Found]:
+    """Candidates from sympy's general transformations of the target."""
+    try:
+        tr = ctx.translate(target)
+    except ValueError:
+        return
+    seen = {tr.expr}
+    for name, title in TRANSFORMS:
+        if _late(deadline):
+            return
+        try:
+            out = run_with_budget(_transform, (name, tr.expr), min(ctx.sympy_seconds, _left(deadline)))
+        except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, AttributeError):
+            continue
+        if out in seen:
+            continue
+        seen.add(out)
+        try:
+            yield Found(f"sympy-{name}", title, sym.from_sympy(out, tr))
+        except sym.Untranslatable:
+            continue
+
+
+# ---- series branch -----------------------------------------------------------------------------------------------
+def series_variable(target: Node) -> Node | None:
+    """The largest sub-expression u with target = g(u): every input is reached only through u."""
+    names = dag.inputs(target)
+    inner = [n for n in topological(target) if n is not target and n.kind != CONST and dag.inputs(n) == names]
+    for u in sorted(inner, key=dag.size, reverse=True):
+        hole = Node(INPUT, name=SERIES_VAR, text=SERIES_VAR)
+        if dag.inputs(dag.substitute(target, u, hole)) == {SERIES_VAR}:
+            return u
+    return None
+
+
+def _series_terms(expr: Any, u: sp.Symbol, count: int) -> list[tuple[Fraction, int]] | None:
+    """The first `count` (or fewer, if the series ends) non-zero terms c·u^k of the Maclaurin series, or None."""
+    order = count + 2
+    for _ in range(6):
+        s = sp.series(expr, u, 0, order).removeO()
+        poly = sp.Poly(s, u) if s.is_polynomial(u) else None
+        if poly is None:
+            return None
+        terms = [(c, k[0]) for k, c in zip(poly.monoms(), poly.coeffs())]
+        if any(not c.is_Rational for c, _ in terms):
+            return None
+        terms = sorted(((Fraction(int(c.p), int(c.q)), k) for c, k in terms), key=lambda t: t[1])
+        if len(terms) >= count or s == expr:
+            return terms[:count]
+        order *= 2
+    return None
+
+
+def series_node(terms: list[tuple[Fraction, int]], u: Node) -> Node:
+    """c₀·u^k₀ + c₁·u^k₁ + … written as `u**3 / 6 - u**5 / 120 + …` (leading term first)."""
+    def term(c: Fraction, k: int) -> Node:
+        base = u if k == 1 else dag.power(u, k)
+        a = abs(c)
+        num = base if a.numerator == 1 else dag.mul(dag.const(a.numerator), base)
+        return num if a.denominator == 1 else dag.div(num, dag.const(a.denominator))
+
+    c0, k0 = terms[0]
+    acc = term(c0, k0) if c0 > 0 else dag.neg(term(c0, k0))
+    for c, k in terms[1:]:
+        acc = dag.add(acc, term(c, k)) if c > 0 else dag.sub(acc, term(c, k))
+    return acc
+
+
+def _nice_below(x: float) -> float:
+    """A round number ≤ x (one significant digit)."""
+    if x <= 0 or not math.isfinite(x):
+        return x
+    p = 10.0 ** math.floor(math.log10(x))
+    return math.floor(x / p) * p
+
+
+def series(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Found]:
+    """A Taylor branch for small arguments, switch point and length chosen by measurement."""
+    u = series_variable(target)
+    if u is None:
+        return
+    uv = ctx.bench.values(u)
+    uv = np.abs(uv[np.isfinite(uv) & (uv != 0)])
+    if not len(uv):
+        return
+    lo, hi = float(uv.min()), float(uv.max())
+    try:
+        tr = sym.to_sympy(target, {id(u)}, lambda n: n is u and ctx.sign(u) == 1, exact_forms=True)
+    except ValueError:
+        return
+    (var,) = [s for s, n in tr.symbols.items() if n is u] or [None]
+    if var is None or tr.expr.free_symbols != {var}:
+        return
+    grid_u = np.unique(np.concatenate([np.geomspace(lo, hi, 48) if hi > lo else np.array([lo]), [lo, hi]]))
+    signs = [1.0] if ctx.sign(u) == 1 else [1.0, -1.0] if ctx.sign(u) == 0 else [-1.0]
+    grid = np.concatenate([s * grid_u for s in signs])
+    x = Node(INPUT, name=SERIES_VAR, text=SERIES_VAR)
+    local = dag.substitute(target, u, x)
+    try:
+        exact = _exact(local, grid, deadline)
+        orig = _lost(forward(topological(local), {SERIES_VAR: grid}, F64_BACKEND, len(grid))[id(local)], exact,
+                     ctx.bench.u)
+    except BudgetExceeded:
+        return
+    try:
+        every = run_with_budget(_series_terms, (tr.expr, var, MAX_TERMS), min(1.0, _left(deadline)))
+    except (OverBudget, RuntimeError, ValueError, TypeError, sp.PoleError, NotImplementedError):
+        return
+    if not every:
+        return
+    best: tuple[float, int, float] | None = None  # (worst digits, terms, switch)
+    chosen: list[tuple[Fraction, int]] | None = None
+    for count in range(1, len(every) + 1):
+        if _late(deadline):
+            break
+        terms = every[:count]
+        trunc = _truncation(terms, grid, exact)
+        ok = trunc <= ctx.bench.u / 8
+        # switch: the largest |u| below which every grid point is within the truncation bound
+        bad = np.abs(grid)[~ok]
+        switch = float(bad.min()) if len(bad) else math.inf
+        if switch <= lo:
+            continue
+        poly = series_node(terms, x)
+        with np.errstate(all="ignore"):
+            p64 = forward(topological(poly), {SERIES_VAR: grid}, F64_BACKEND, len(grid))[id(poly)]
+        plost = _lost(p64, exact, ctx.bench.u)
+        use = np.abs(grid) < switch
+        worst = float(max(np.max(plost[use], initial=0.0), np.max(orig[~use], initial=0.0)))
+        if best is None or worst < best[0] - 0.25:
+            best, chosen = (worst, count, switch), terms
+        if not len(bad):
+            break
+    if best is None or chosen is None:
+        return
+    worst, count, switch = best
+    poly = series_node(chosen, u)
+    if switch > hi:
+        yield Found("series", f"Use the Taylor series ({count} terms) on this small-argument range", poly, True)
+        return
+    cut = _nice_below(switch)
+    cond = dag.compare(dag.call("abs", u), "<", dag.const(cut))
+    yield Found("series", f"Use the Taylor series ({count} terms) where |{_short(u)}| < {cut:g}",
+                dag.select(cond, poly, target), True)
+
+
+def _short(u: Node) -> str:
+    text = u.text or u.name or "x"
+    return text if len(text) <= 20 else "x"
+
+
+def _exact(root: Node, grid: np.ndarray, deadline: Deadline) -> list[Any]:
+    vals, dps = _reference(topological(root), {SERIES_VAR: grid}, len(grid), deadline)
+    with mpmath.workdps(dps):
+        return [+v for v in vals[id(root)]]
+
+
+def _truncation(terms: list[tuple[Fraction, int]], grid: np.ndarray, exact: list[Any]) -> np.ndarray:
+    out = np.empty(len(grid))
+    with mpmath.workdps(60):
+        for i, (g, e) in enumerate(zip(grid, exact)):
+            xg = mpmath.mpf(float(g))
+            p = mpmath.fsum(mpmath.mpf(c.numerator) / c.denominator * xg ** k for c, k in terms)
+            out[i] = math.inf if (mpmath.isnan(e) or e == 0) else float(abs((p - e) / e))
+    return out
+
+
+def _lost(values: Any, exact: list[Any], u: float) -> np.ndarray:
+    v = np.asarray(values, dtype=float)
+    out = np.empty(len(v))
+    total = -math.log10(u)
+    with mpmath.workdps(60):
+        for i, (a, e) in enumerate(zip(v, exact)):
+            if mpmath.isnan(e) or e == 0:
+                out[i] = 0.0
+            elif not math.isfinite(a):
+                out[i] = total
+            else:
+                err = float(abs((mpmath.mpf(a) - e) / e))
+                out[i] = min(total, max(0.0, math.log10(max(err, u) / u)))
+    return out
+
+
+def _left(deadline: Deadline) -> float:
+    import time
+
+    return max(0.05, (deadline.at - time.perf_counter()) if deadline.at is not None else 1.0)
+
+
+def _late(deadline: Deadline) -> bool:
+    import time
+
+    return deadline.at is not None and time.perf_counter() > deadline.at

@@ -1,0 +1,228 @@
+"""Verification of a candidate rewrite (design §3): equivalent on the domain, and measured more accurate.
+
+Original and candidate are evaluated on the same samples of the site's input ranges (those the analysis
+uses, plus edge values): binary64 as the code runs, mpmath at a precision checked to be enough as the
+truth. A candidate passes when
+
+- its exact value equals the original's at every checked point where the original is defined (to 1e-20
+  relative; series approximations to a quarter of the unit roundoff), and sympy proves the identity when
+  it can within its time budget;
+- its worst measured loss is at least `MIN_GAIN` digits below the original's, and at no checked point is
+  it worse than the original by more than `MAX_WORSE` digits (losses below `NOISE` digits count as
+  `NOISE`: a few ulps either way are not a difference).
+"""
+from __future__ import annotations
+
+import math
+import zlib
+from dataclasses import dataclass
+from typing import Any
+
+import mpmath
+import numpy as np
+
+from condhint.budget import OverBudget, run_with_budget
+from condhint.config import Config
+from condhint.expr import INPUT, Node, topological
+from condhint.numeric.analysis import _digits, _metrics, _reference, _rounds, site_ranges
+from condhint.numeric.backends import F64_BACKEND
+from condhint.numeric.evaluate import BudgetExceeded, Deadline, forward, reverse
+from condhint.numeric.sampling import sample
+from condhint.rewrites import sym
+from condhint.site import Site
+
+MIN_GAIN = 1.0
+MAX_WORSE = 0.25
+NOISE = 0.5
+EXACT_TOLERANCE = 1e-20
+
+
+@dataclass
+class Evidence:
+    """What the measurement showed for one candidate."""
+
+    ok: bool
+    before: float = 0.0  # worst measured digits lost by the original on the checked points
+    after: float = 0.0  # worst measured digits lost by the candidate
+    worse_by: float = 0.0  # largest excess of the candidate's loss over the original's at one point
+    points: int = 0
+    proven: bool = False
+    reason: str = ""
+
+
+class Bench:
+    """The samples of one site and the original's figures, shared by all candidates for its findings."""
+
+    def __init__(self, site: Site, cfg: Config, worst_at: dict[str, float] | None = None) -> None:
+        self.site = site
+        self.cfg = cfg
+        self.u = cfg.unit_roundoff
+        self.total = -math.log10(self.u)
+        root = site.root
+        self.names = sorted({n.name for n in topological(root) if n.kind == INPUT})  # type: ignore[misc]
+        ranges = site_ranges(site, self.names)
+        cols, self.bounds = sample(ranges, self.names, cfg.samples, zlib.crc32(root.key().encode()),
+                                   cfg.default_range)
+        cols = _with_edges(cols, self.bounds, worst_at or {})
+        n = len(next(iter(cols.values()))) if cols else 1
+        # Keep the samples where guards and branches on computed values hold, as the analysis does.
+        for flt in site.filters:
+            cv = forward(topological(flt.condition), cols, F64_BACKEND, n)[id(flt.condition)]
+            keep = np.asarray(cv, dtype=bool) == flt.holds
+            if keep.any():
+                cols = {k: v[keep] for k, v in cols.items()}
+                n = int(keep.sum())
+        self.cols, self.n = cols, n
+        self._signs: dict[str, int] = {}
+        self._refs: dict[str, dict[int, Any]] = {}
+        self.orig64, self.orig_pred = self.screen(root)
+
+    # ---- binary64 ---------------------------------------------------------------------------------------------
+    def values(self, node: Node) -> np.ndarray:
+        with np.errstate(all="ignore"):
+            v = forward(topological(node), self.cols, F64_BACKEND, self.n)[id(node)]
+        return np.asarray(v, dtype=float) if np.ndim(v) else np.full(self.n, float(v))
+
+    def screen(self, root: Node) -> tuple[np.ndarray, np.ndarray]:
+        """binary64 values and predicted digits lost (rounding amplification) at every sample."""
+        nodes = topological(root)
+        with np.errstate(all="ignore"):
+            vals = forward(nodes, self.cols, F64_BACKEND, self.n)
+            adj, _ = reverse(nodes, vals, F64_BACKEND)
+            rounding = [i for i, node in enumerate(nodes) if _rounds(node)]
+            names = sorted({n.name for n in nodes if n.kind == INPUT})  # type: ignore[misc]
+            _, _, amp, _ = _metrics(nodes, vals, adj, names, rounding, F64_BACKEND)
+        v = np.asarray(vals[id(root)], dtype=float)
+        return v, _digits(np.asarray(amp, dtype=float), self.total)
+
+    def sign(self, node: Node) -> int:
+        """+1 or -1 when the node has that sign at every sample where it is defined, else 0."""
+        key = node.key()
+        if key not in self._signs:
+            v = self.values(node)
+            v = v[~np.isnan(v)]
+            self._signs[key] = 0 if not len(v) else (1 if np.all(v > 0) else -1 if np.all(v < 0) else 0)
+        return self._signs[key]
+
+    def nonneg(self, node: Node) -> bool:
+        v = self.values(node)
+        v = v[~np.isnan(v)]
+        return bool(len(v)) and bool(np.all(v >= 0))
+
+    # ---- reference ----------------------------------------------------------------------------------------------
+    def reference(self, root: Node, idx: np.ndarray, deadline: Deadline | None) -> list[Any]:
+        """mpmath values of `root` at the samples `idx` (memoised per point)."""
+        memo = self._refs.setdefault(root.key(), {})
+        missing = np.array([i for i in idx if int(i) not in memo], dtype=int)
+        if len(missing):
+            nodes = topological(root)
+            sub = {k: v[missing] for k, v in self.cols.items()}
+            vals, dps = _reference(nodes, sub, len(missing), deadline)
+            for i, value in zip(missing, vals[id(root)]):
+                memo[int(i)] = (value, dps)
+        return [memo[int(i)] for i in idx]
+
+    def checkpoints(self, cand64: np.ndarray, cand_pred: np.ndarray) -> np.ndarray:
+        """The samples to check in mpmath: where either formula is predicted worst, where the two binary64
+        results differ most or are not finite, a spread over the range, and the edge values."""
+        n, quota = self.n, 14
+        with np.errstate(all="ignore"):
+            scale = np.maximum(np.abs(self.orig64), np.abs(cand64))
+            diff = np.abs(self.orig64 - cand64) / np.where(scale > 0, scale, 1.0)
+        scores = [self.orig_pred, cand_pred, np.nan_to_num(diff, nan=np.inf),
+                  (~np.isfinite(self.orig64)).astype(float) + (~np.isfinite(cand64)).astype(float)]
+        picks: set[int] = set(range(max(0, n - self.edges), n)) | {0}
+        for s in scores:
+            order = np.argsort(-np.nan_to_num(s, nan=np.inf), kind="stable")
+            picks.update(int(i) for i in order[:quota] if s[i] > 0 or s is scores[0])
+        picks.update(int(i) for i in np.linspace(0, n - 1, min(n, 16)).astype(int))
+        return np.array(sorted(picks), dtype=int)
+
+    @property
+    def edges(self) -> int:
+        return 2 * len(self.names)
+
+    # ---- the verdict --------------------------------------------------------------------------------------------
+    def judge(self, target: Node, replacement: Node, candidate_root: Node, approximate: bool,
+              deadline: Deadline | None, proof_seconds: float = 0.5) -> Evidence:
+        cand64, cand_pred = self.screen(candidate_root)
+        idx = self.checkpoints(cand64, cand_pred)
+        try:
+            ref = self.reference(self.site.root, idx, deadline)
+            cref = self.reference(candidate_root, idx, deadline)
+        except BudgetExceeded:
+            return Evidence(False, reason="over the time budget")
+        tol = self.u / 4 if approximate else EXACT_TOLERANCE
+        before, after, worse = [], [], 0.0
+        for k, i in enumerate(idx):
+            (r, dps), (c, _) = ref[k], cref[k]
+            with mpmath.workdps(dps):
+                if mpmath.isnan(r):
+                    continue  # undefined for the original: the candidate may extend it
+                if not _agree(r, c, tol):
+                    return Evidence(False, reason=f"not equivalent at {self.at(int(i))}")
+                if mpmath.isinf(r) or r == 0 or abs(r) < mpmath.mpf(2.2250738585072014e-308):
+                    continue
+                d0 = self._lost(float(self.orig64[i]), r)
+                d1 = self._lost(float(cand64[i]), r)
+            before.append(d0)
+            after.append(d1)
+            worse = max(worse, max(d1, NOISE) - max(d0, NOISE))
+        if not before:
+            return Evidence(False, reason="no point where the original is defined")
+        ev = Evidence(False, max(before), max(after), worse, len(before))
+        if ev.after > ev.before - MIN_GAIN:
+            ev.reason = f"not accurate enough: {ev.after:.1f} digits lost instead of {ev.before:.1f}"
+            return ev
+        if worse > MAX_WORSE:
+            ev.reason = f"worse than the original by {worse:.2f} digits somewhere"
+            return ev
+        ev.ok = True
+        if not approximate:
+            ev.proven = prove(target, replacement, self, proof_seconds)
+        return ev
+
+    def _lost(self, approx: float, exact: Any) -> float:
+        if not math.isfinite(approx):
+            return self.total
+        err = abs((mpmath.mpf(approx) - exact) / exact)
+        return float(_digits(np.array([float(err) / self.u]), self.total)[0])
+
+    def at(self, i: int) -> str:
+        return ", ".join(f"{k} = {v[i]:.6g}" for k, v in self.cols.items())
+
+
+def _agree(a: Any, b: Any, tol: float) -> bool:
+    if mpmath.isnan(b):
+        return False
+    if mpmath.isinf(a) or mpmath.isinf(b):
+        return a == b
+    if a == 0:
+        return abs(b) < mpmath.mpf(10) ** -300
+    return abs((a - b) / a) <= tol
+
+
+def _with_edges(cols: dict[str, np.ndarray], bounds: dict[str, tuple[float, float]], at: dict[str, float]
+                ) -> dict[str, np.ndarray]:
+    """Append, for each input, a point at each end of its range (other inputs at the finding's worst point)."""
+    if not cols:
+        return cols
+    extra: dict[str, list[float]] = {k: [] for k in cols}
+    mid = {k: at.get(k, float(v[len(v) // 2])) for k, v in cols.items()}
+    for name in cols:
+        for end in bounds[name]:
+            for k in cols:
+                extra[k].append(end if k == name else mid[k])
+    return {k: np.concatenate([v, np.array(extra[k], dtype=float)]) for k, v in cols.items()}
+
+
+def prove(target: Node, replacement: Node, bench: Bench, seconds: float) -> bool:
+    """sympy shows target − replacement ≡ 0 (inputs positive where their range is), within `seconds`."""
+    positive = {n for n in bench.names if bench.bounds[n][0] > 0}
+    pos = lambda node: node.kind == INPUT and node.name in positive  # noqa: E731
+    try:
+        a = sym.to_sympy(target, positive=pos, exact_forms=True).expr
+        b = sym.to_sympy(replacement, positive=pos, exact_forms=True).expr
+        return bool(run_with_budget(sym.is_zero, (a - b,), seconds))
+    except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, ZeroDivisionError, AttributeError):
+        return False
