@@ -96,7 +96,7 @@ def analyse_site(site: Site, cfg: Config, cache: AnalysisCache | None = DEFAULT_
 
 
 def analyse_module(text: str, path: str, cfg: Config, cache: AnalysisCache | None = DEFAULT_CACHE,
-                   tree: ast.Module | None = None) -> ModuleAnalysis:
+                   tree: ast.Module | None = None, fixes: bool = False) -> ModuleAnalysis:
     t0 = time.perf_counter()
     report = FileReport(path=path, status="ok", lines=text.count("\n") + 1)
     if tree is None:
@@ -155,6 +155,10 @@ def analyse_module(text: str, path: str, cfg: Config, cache: AnalysisCache | Non
     _apply_suppressions(report, comments)
     report.findings = [f for f in report.findings if _at_least(f.severity, cfg.min_severity)]
     report.findings.sort(key=lambda f: (f.span.line, f.span.col, f.code))
+    if fixes and cfg.fixes:  # verified rewrites: only when asked, so checking stays fast
+        from condhint.rewrites import attach_fixes
+
+        attach_fixes(out, cfg, cache)
     report.seconds = time.perf_counter() - t0
     return out
 
