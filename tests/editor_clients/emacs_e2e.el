@@ -98,10 +98,16 @@
         (condhint-e2e-put :hover (condhint-e2e-hover-text hover)))
       (condhint-e2e-step "hover")
 
-      (let* ((actions (eglot-code-actions beg end "quickfix"))
-             (rewrite (cl-find-if (lambda (a) (and (plist-get a :edit)
-                                                   (not (condhint-e2e-comment-only-p a))))
-                                  actions)))
+      ;; The server may still be verifying a rewrite when the diagnostic arrives: ask
+      ;; again, a few times a second, until one is offered or the timeout runs out.
+      (let ((deadline (+ (float-time) condhint-e2e-timeout))
+            actions rewrite)
+        (while (progn (setq actions (eglot-code-actions beg end "quickfix")
+                            rewrite (cl-find-if (lambda (a) (and (plist-get a :edit)
+                                                                 (not (condhint-e2e-comment-only-p a))))
+                                                actions))
+                      (and (null rewrite) (< (float-time) deadline)))
+          (accept-process-output nil 0.25))
         (condhint-e2e-put :actions (vconcat (mapcar (lambda (a) (plist-get a :title)) actions)))
         (condhint-e2e-step "code actions")
         (unless rewrite (error "No rewrite among the quick fixes"))

@@ -100,7 +100,7 @@ local function run()
     start = { line = target.lnum, character = target.col },
     ["end"] = { line = target.end_lnum, character = target.end_col },
   }
-  local responses = vim.lsp.buf_request_sync(bufnr, "textDocument/codeAction", {
+  local params = {
     textDocument = { uri = uri },
     range = range,
     -- Neovim 0.7 keeps only part of the LSP diagnostic in user_data: rebuild the rest.
@@ -109,36 +109,50 @@ local function run()
                                                             code = target.code }) },
       only = { "quickfix" },
     },
-  }, timeout)
-  local actions = {}
-  for _, response in pairs(responses or {}) do
-    for _, action in ipairs(response.result or {}) do
-      table.insert(actions, action)
+  }
+  local function quick_fixes()
+    local actions = {}
+    local responses = vim.lsp.buf_request_sync(bufnr, "textDocument/codeAction", params, timeout)
+    for _, response in pairs(responses or {}) do
+      for _, action in ipairs(response.result or {}) do
+        if action.edit == nil and action.data ~= nil then
+          -- Neovim 0.7 declares codeAction resolveSupport for `edit`: it may come on resolve.
+          local resolved = vim.lsp.buf_request_sync(bufnr, "codeAction/resolve", action, timeout)
+          for _, r in pairs(resolved or {}) do
+            action = r.result or action
+          end
+        end
+        table.insert(actions, action)
+      end
+    end
+    return actions
+  end
+  local function rewrite_among(actions)
+    -- The rewrite: a quick fix whose edit is not only a `# condhint:` comment.
+    for _, action in ipairs(actions) do
+      if action.edit and not edits_comment_only(action) then
+        return action
+      end
     end
   end
+
+  -- The server may still be verifying a rewrite when the diagnostic arrives: ask again,
+  -- a few times a second, until one is offered or the timeout runs out.
+  local uv = vim.uv or vim.loop
+  local deadline = uv.now() + timeout
+  local actions, chosen
+  repeat
+    actions = quick_fixes()
+    chosen = rewrite_among(actions)
+    if not chosen then
+      vim.wait(250, function() return false end, 50)
+    end
+  until chosen or uv.now() > deadline
   report.actions = {}
   for _, a in ipairs(actions) do
     table.insert(report.actions, a.title)
   end
   step("code actions")
-
-  -- The rewrite: a quick fix whose edit is not only a `# condhint:` comment.
-  local chosen
-  for _, action in ipairs(actions) do
-    if action.edit == nil and action.data ~= nil then
-      -- Neovim 0.7 declares codeAction resolveSupport for `edit`: the server may send it later.
-      local resolved = vim.lsp.buf_request_sync(bufnr, "codeAction/resolve", action, timeout)
-      for _, response in pairs(resolved or {}) do
-        if response.result then
-          action = response.result
-        end
-      end
-    end
-    if action.edit and not edits_comment_only(action) then
-      chosen = action
-      break
-    end
-  end
   assert(chosen, "no rewrite among the quick fixes: " .. vim.inspect(report.actions))
   report.applied = chosen.title
   vim.lsp.util.apply_workspace_edit(chosen.edit, client.offset_encoding)
