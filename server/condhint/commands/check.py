@@ -38,7 +38,7 @@ def run(args: argparse.Namespace) -> int:
 
         cfg = replace(cfg, min_severity=args.min_severity) if args.format not in HUMAN_FORMATS else cfg
     narrowing = Narrowing(args)
-    result = check_paths(args.paths, cfg, **run_settings(args))
+    result = check_paths(args.paths, cfg, fixes=args.format == "json" and cfg.fixes, **run_settings(args))
     notes = narrowing.apply(result.reports)
     shown = args.min_severity or ("warning" if args.format in HUMAN_FORMATS else "info")
     options = {"min_severity": shown, "statistics": args.statistics and args.format != "text"}
