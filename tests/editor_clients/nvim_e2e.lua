@@ -7,7 +7,11 @@
 -- The report holds the diagnostics, the hover text, the titles of the quick fixes, the buffer
 -- after applying the rewrite, and the diagnostics after that; test_editor_e2e.py judges them.
 
-local report = { steps = {} }
+local report = {
+  steps = {},
+  -- Which way the module starts clients in this Neovim.
+  api = type(vim.lsp.start) == "function" and "vim.lsp.start" or "vim.lsp.start_client",
+}
 local result_path = assert(os.getenv("CONDHINT_RESULT"))
 local timeout = tonumber(os.getenv("CONDHINT_TIMEOUT") or "60000")
 

@@ -13,7 +13,7 @@ import mpmath
 import numpy as np
 import pytest
 
-from editor_support import CLIENTS, current_nvim, require_program, run
+from editor_support import CLIENTS, current_nvim, debian_nvim, require_program, run
 from server_probe import require_server
 
 HERE = Path(__file__).parent
@@ -78,7 +78,7 @@ def judge(report: dict) -> None:
     assert worst_relative_error(after) < 1e-14, after
 
 
-NVIMS = {"debian": lambda: require_program("nvim", "apt-get install -y neovim"), "current": current_nvim}
+NVIMS = {"debian": debian_nvim, "current": current_nvim}
 
 
 @pytest.mark.parametrize("which", list(NVIMS))
@@ -97,6 +97,10 @@ def test_neovim_end_to_end(which: str, server: list[str], project: Path) -> None
     assert result.exists(), proc.stderr
     report = json.loads(result.read_text())
     judge(report)
+    version = run([nvim, "--version"], timeout=30).stdout.splitlines()[0]
+    # Neovim 0.7 has no vim.lsp.start (added in 0.8): the module must use start_client there.
+    expected = "vim.lsp.start_client" if version.startswith("NVIM v0.7") else "vim.lsp.start"
+    assert report["api"] == expected, version
     # One client per root: the second file joined the first file's server.
     assert report["second_attached"] is True
     assert report["client_count_after_second"] == 1

@@ -7,7 +7,7 @@ from pathlib import Path
 
 import pytest
 
-from editor_support import CLIENTS, current_nvim, require_program, run
+from editor_support import CLIENTS, current_nvim, debian_nvim, run
 
 NEOVIM_DIR = CLIENTS / "neovim"
 CHECK = Path(__file__).with_name("nvim_setup_check.lua")
@@ -29,7 +29,7 @@ def run_check(nvim: str, tmp_path: Path) -> None:
 
 
 def test_setup_on_debian_neovim(tmp_path: Path) -> None:
-    run_check(require_program("nvim", "apt-get install -y neovim"), tmp_path)
+    run_check(debian_nvim(), tmp_path)
 
 
 def test_setup_on_current_neovim(tmp_path: Path) -> None:
