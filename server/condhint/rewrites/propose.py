@@ -10,13 +10,14 @@ new finding may appear.
 from __future__ import annotations
 
 import ast
+import keyword
 import time
 from collections import Counter
 from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING, Iterator
 
 from condhint.config import Config
-from condhint.expr import INPUT, SELECT, Node, topological
+from condhint.expr import INPUT, SELECT, Node, Span, topological
 from condhint.findings import Finding, Fix
 from condhint.numeric.evaluate import Deadline
 from condhint.rewrites import codegen, dag, search
@@ -43,6 +44,7 @@ class Verified:
     replacement: Node
     text: str
     imports: list[str]
+    span: Span
     evidence: Evidence
     cost: int
     order: int
@@ -53,7 +55,7 @@ class Verified:
     def fix(self) -> Fix:
         ev = self.evidence
         title = f"{self.title} (loses {ev.after:.1f} instead of {ev.before:.1f} digits)"
-        return Fix(title=title, replacement=self.text, span=self.target.span, imports=list(self.imports),  # type: ignore[arg-type]
+        return Fix(title=title, replacement=self.text, span=self.span, imports=list(self.imports),
                    measured_digits_lost_after=ev.after, measured_digits_lost_before=ev.before, rule=self.rule,
                    proven=ev.proven)
 
@@ -76,14 +78,34 @@ class Writer:
             return None
         return node.text if codegen.is_expression(node.text) else None
 
-    def write(self, replacement: Node) -> tuple[str, list[str]]:
+    def write(self, replacement: Node) -> tuple[str, list[str], Span]:
+        """The replacement text, the imports it needs, and the span it replaces (the target's, widened over
+        grouping parentheses that a call or name no longer needs)."""
         spelling = codegen.Spelling.for_site(self.style, self.site_nodes)
         text, prec = codegen.Emitter(spelling, self.reuse, self.names).text(replacement)
+        span = self.target.span
+        assert span is not None
         if prec < codegen.precedence(self.target.text):
             text = f"({text})"
+        elif prec == codegen.ATOM_P:
+            span = self._without_grouping(span)
         codegen.check_side_effects(self.target.text, text, replacement)
         ast.parse(text, mode="eval")
-        return text, spelling.imports
+        return text, spelling.imports, span
+
+    def _without_grouping(self, span: Span) -> Span:
+        if span.line != span.end_line:
+            return span
+        line = self.source.lines[span.line - 1]
+        left, right = line[: span.col].rstrip(), line[span.end_col:]
+        if not left.endswith("(") or not right.lstrip().startswith(")"):
+            return span
+        before = left[:-1].rstrip()
+        word = before[len(before.rstrip("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ0123456789_")):]
+        if (word and not keyword.iskeyword(word)) or before.endswith((")", "]", "}", "'", '"')):
+            return span  # the parentheses of a call, or after a subscript or string: not grouping
+        close = span.end_col + (len(right) - len(right.lstrip())) + 1
+        return Span(span.line, len(left) - 1, span.end_line, close)
 
 
 def visible_names(ma: "ModuleAnalysis", site: Site, target: Node) -> dict[int, str]:
@@ -207,7 +229,7 @@ def fixes_for(finding: Finding, ma: "ModuleAnalysis", cfg: Config, cache: "Analy
             if deadline.at is not None and time.perf_counter() > deadline.at:
                 break
             try:
-                text, imports = writer(p.target).write(p.replacement)
+                text, imports, span = writer(p.target).write(p.replacement)
             except (codegen.Unspellable, SyntaxError, ValueError, RecursionError):
                 continue
             if (id(p.target), text) in seen or text == p.target.text:
@@ -216,8 +238,8 @@ def fixes_for(finding: Finding, ma: "ModuleAnalysis", cfg: Config, cache: "Analy
             cand_root = dag.substitute(site.root, p.target, p.replacement)
             ev = bench.judge(p.target, p.replacement, cand_root, p.approximate, deadline)
             if ev.ok:
-                verified.append(Verified(p.rule, p.title, p.target, p.replacement, text, imports, ev, p.cost,
-                                         p.order))
+                verified.append(Verified(p.rule, p.title, p.target, p.replacement, text, imports, span, ev,
+                                         p.cost, p.order))
         if verified:
             break
     verified.sort(key=Verified.rank)

@@ -4,7 +4,7 @@
    sympy's c99 rewrites (expm1, log1p…), under a time budget;
 2. where no closed form removes the loss: the Taylor series of the target in one variable about 0, used
    where the argument is small. The number of terms and the switch point are chosen by measurement: the
-   series is used up to the largest argument where its truncation error stays below u/8, and the original
+   series is used up to the largest argument where its truncation error stays below u/4, and the original
    formula beyond it.
 """
 from __future__ import annotations
@@ -168,7 +168,7 @@ def series(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Found]:
             break
         terms = every[:count]
         trunc = _truncation(terms, grid, exact)
-        ok = trunc <= ctx.bench.u / 8
+        ok = trunc <= ctx.bench.u / 4
         # switch: the largest |u| below which every grid point is within the truncation bound
         bad = np.abs(grid)[~ok]
         switch = float(bad.min()) if len(bad) else math.inf

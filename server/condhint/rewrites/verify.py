@@ -5,7 +5,7 @@ uses, plus edge values): binary64 as the code runs, mpmath at a precision checke
 truth. A candidate passes when
 
 - its exact value equals the original's at every checked point where the original is defined (to 1e-20
-  relative; series approximations to a quarter of the unit roundoff), and sympy proves the identity when
+  relative; series approximations to half the unit roundoff), and sympy proves the identity when
   it can within its time budget;
 - its worst measured loss is at least `MIN_GAIN` digits below the original's, and at no checked point is
   it worse than the original by more than `MAX_WORSE` digits (losses below `NOISE` digits count as
@@ -152,7 +152,7 @@ class Bench:
             cref = self.reference(candidate_root, idx, deadline)
         except BudgetExceeded:
             return Evidence(False, reason="over the time budget")
-        tol = self.u / 4 if approximate else EXACT_TOLERANCE
+        tol = self.u / 2 if approximate else EXACT_TOLERANCE
         before, after, worse = [], [], 0.0
         for k, i in enumerate(idx):
             (r, dps), (c, _) = ref[k], cref[k]
