@@ -1,0 +1,296 @@
+"""Thin LSP handlers: fetch the document, call the core, convert the result (registered in `server`)."""
+from __future__ import annotations
+
+import asyncio
+import logging
+import os
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from lsprotocol import types
+from pygls.capabilities import get_capability
+from pygls.uris import from_fs_path, to_fs_path
+
+from condhint.hover import analyse_node, describe, markdown
+from condhint.lsp import actions
+from condhint.lsp.background import rewrites
+from condhint.lsp.convert import (Positions, result_id, to_lsp_hover, to_lsp_inlay_hint, to_lsp_text_edit,
+                                  to_lsp_workspace_edit)
+from condhint.lsp.settings import SECTION, resolve, section_of
+from condhint.lsp.state import DocumentState, relative_to
+
+if TYPE_CHECKING:
+    from condhint.lsp.server import CondhintServer
+
+log = logging.getLogger(__name__)
+
+HOVER_WAIT = 5.0  # seconds a hover waits for the analysis of the current text
+FORMULA_WAIT = 0.15  # seconds a hover waits for a κ formula that is not ready (it is shown on the next hover)
+FIX_WAIT = 3.0  # seconds a code action request waits for the rewrite search of a finding
+CONFIG_WAIT = 5.0
+
+
+# ---- lifecycle and settings ---------------------------------------------------------------------------------
+def initialize(ls: "CondhintServer", params: types.InitializeParams) -> None:
+    ls.init_options = params.initialization_options
+    root = params.workspace_folders[0].uri if params.workspace_folders else params.root_uri
+    path = to_fs_path(root) if root else params.root_path
+    ls.root = Path(path) if path else None
+    ls.pull = get_capability(params.capabilities, "text_document.diagnostic", None) is not None
+    ls.settings = resolve(ls.root, ls.init_options)
+
+
+async def initialized(ls: "CondhintServer", params: types.InitializedParams) -> None:
+    ls.loop = asyncio.get_running_loop()
+    if ls.settings.config.kappa_formula:
+        ls.background.warm_up()
+    await refresh_settings(ls)
+
+
+async def refresh_settings(ls: "CondhintServer", pushed: Any = None) -> None:
+    """Re-read the settings (pushed with didChangeConfiguration, else asked with workspace/configuration)
+    and re-analyse every open document."""
+    workspace = pushed
+    if workspace is None and not ls.client_has("workspace.configuration"):
+        workspace = ls.workspace_settings  # settings pushed earlier with didChangeConfiguration, if any
+    elif workspace is None:
+        scope = from_fs_path(str(ls.root)) if ls.root else None
+        try:
+            answer = await asyncio.wait_for(ls.workspace_configuration_async(types.ConfigurationParams(
+                items=[types.ConfigurationItem(section=SECTION, scope_uri=scope)])), CONFIG_WAIT)
+            workspace = answer[0] if answer else None
+        except Exception as exc:  # noqa: BLE001 - clients that cannot answer keep the other settings
+            log.info("workspace/configuration not answered: %r", exc)
+    before = ls.settings
+    ls.workspace_settings = workspace
+    ls.settings = resolve(ls.root, ls.init_options, workspace)
+    message = ls.settings.message()
+    if message and message != before.message():
+        ls.tell(message)
+    if ls.settings.config.kappa_formula and not before.config.kappa_formula:
+        ls.background.warm_up()
+    if ls.settings == before:
+        return
+    reanalyse(ls)
+
+
+def reanalyse(ls: "CondhintServer") -> None:
+    for state in ls.docs:
+        state.invalidate()
+        ls.analyser.schedule(state, 0.0)
+    if ls.pull and ls.client_has("workspace.diagnostics.refresh_support"):
+        ls.workspace_diagnostic_refresh(None)
+    if ls.client_has("workspace.inlay_hint.refresh_support"):
+        ls.workspace_inlay_hint_refresh(None)
+
+
+async def did_change_configuration(ls: "CondhintServer", params: types.DidChangeConfigurationParams) -> None:
+    pushed = params.settings if isinstance(params.settings, dict) and SECTION in params.settings else None
+    if pushed is not None:
+        pushed = section_of(pushed, "didChangeConfiguration", [])
+    before = ls.settings
+    await refresh_settings(ls, pushed)
+    if ls.settings == before:
+        reanalyse(ls)  # pyproject.toml may be unchanged too: the client asked for fresh results anyway
+
+
+def shutdown(ls: "CondhintServer", params: Any = None) -> None:
+    ls.shut_down = True
+    ls.loop = None  # no more log forwarding
+    ls.background.shutdown()
+    ls.analyser.shutdown()
+
+
+def exit_now(ls: "CondhintServer", params: Any = None) -> None:
+    """The client's `exit`: end the process at once. Every reply has been written and flushed already;
+    tearing down the interpreter (numpy, mpmath, sympy, idle threads) would only keep the editor waiting."""
+    logging.shutdown()
+    os._exit(0 if ls.shut_down else 1)
+
+
+# ---- documents ----------------------------------------------------------------------------------------------
+def _is_python(item: types.TextDocumentItem) -> bool:
+    return item.language_id == "python" or item.uri.endswith((".py", ".pyi"))
+
+
+def did_open(ls: "CondhintServer", params: types.DidOpenTextDocumentParams) -> None:
+    item = params.text_document
+    if not _is_python(item):
+        return
+    state = ls.docs.open(item.uri, ls.path_of(item.uri), item.version, item.text)
+    ls.analyser.schedule(state, 0.0)
+
+
+def did_change(ls: "CondhintServer", params: types.DidChangeTextDocumentParams) -> None:
+    state = ls.docs.get(params.text_document.uri)
+    if state is None:
+        return
+    state.update(ls.workspace.get_text_document(state.uri).source, params.text_document.version)
+    ls.analyser.schedule(state)
+
+
+def did_save(ls: "CondhintServer", params: types.DidSaveTextDocumentParams) -> None:
+    state = ls.docs.get(params.text_document.uri)
+    if state is not None:
+        ls.analyser.schedule(state)
+
+
+def did_close(ls: "CondhintServer", params: types.DidCloseTextDocumentParams) -> None:
+    if ls.docs.close(params.text_document.uri) is not None and not ls.pull:
+        ls.analyser.clear(params.text_document.uri)
+
+
+def _cfg(ls: "CondhintServer", state: DocumentState):  # noqa: ANN202 - condhint.config.Config
+    return ls.settings.analysis_config.for_path(relative_to(state.path, ls.root))
+
+
+# ---- diagnostics (pull) ------------------------------------------------------------------------------------
+async def pull_diagnostics(ls: "CondhintServer", params: types.DocumentDiagnosticParams
+                           ) -> types.DocumentDiagnosticReport:
+    state = ls.docs.get(params.text_document.uri)
+    result = await ls.analyser.result(state, 60.0) if state is not None else None
+    if state is None or result is None:
+        return types.RelatedFullDocumentDiagnosticReport(items=[])
+    items = ls.analyser.diagnostics(state)
+    rid = result_id(items)
+    if params.previous_result_id == rid:
+        return types.RelatedUnchangedDocumentDiagnosticReport(result_id=rid)
+    return types.RelatedFullDocumentDiagnosticReport(items=items, result_id=rid)
+
+
+# ---- hover -------------------------------------------------------------------------------------------------
+async def hover(ls: "CondhintServer", params: types.HoverParams) -> types.Hover | None:
+    state = ls.docs.get(params.text_document.uri)
+    result = await ls.analyser.result(state, HOVER_WAIT) if state is not None else None
+    if state is None or result is None:
+        return None
+    pos = Positions(state.lines, ls.codec)
+    hit = result.node_at(*pos.from_client(params.position))
+    if hit is None:
+        return None
+    piece, site, node = hit
+    cfg = _cfg(ls, state)
+    analysis = piece.analysis.analyses.get(id(site)) if node is site.root else None
+    if analysis is None:
+        loop = asyncio.get_running_loop()
+        analysis = await loop.run_in_executor(ls.background.hover_pool, analyse_node, site, node, cfg)
+    finding = next((f for f in piece.findings if getattr(f, "_site", None) is site
+                    and getattr(f, "_raw", f).span == node.span), None)
+    facts = describe(site, node, analysis, cfg, finding,
+                     line_of=lambda line: line + piece.shift if line > piece.head else None)
+    if ls.settings.config.kappa_formula:
+        facts.formula_state, facts.formula = await _formula(ls, site, node, cfg)
+    span = piece.to_document(node.span) if node.span is not None else None
+    return to_lsp_hover(markdown(facts), span, pos, ls.markdown_hover)
+
+
+async def _formula(ls: "CondhintServer", site, node, cfg) -> tuple[str, str | None]:  # noqa: ANN001
+    ready, text = ls.background.formula(site, node)
+    if not ready:
+        fut = ls.background.want_formula(site, node, cfg)
+        try:
+            text = await asyncio.wait_for(asyncio.shield(fut), FORMULA_WAIT)
+            ready = True
+        except asyncio.TimeoutError:
+            return "pending", None
+    return ("ready", text) if text else ("unavailable", None)
+
+
+# ---- inlay hints -------------------------------------------------------------------------------------------
+async def inlay_hints(ls: "CondhintServer", params: types.InlayHintParams) -> list[types.InlayHint]:
+    if not ls.settings.inlay_hints:
+        return []
+    state = ls.docs.get(params.text_document.uri)
+    result = await ls.analyser.result(state, HOVER_WAIT) if state is not None else None
+    if state is None or result is None:
+        return []
+    pos = Positions(state.lines, ls.codec)
+    start, end = pos.from_client(params.range.start), pos.from_client(params.range.end)
+    return [to_lsp_inlay_hint(f, pos) for f in result.findings
+            if f.code != "CH001" and actions.overlaps(f.span, start, end)]
+
+
+# ---- code actions ------------------------------------------------------------------------------------------
+async def code_actions(ls: "CondhintServer", params: types.CodeActionParams) -> list[types.CodeAction] | None:
+    state = ls.docs.get(params.text_document.uri)
+    result = await ls.analyser.result(state, HOVER_WAIT) if state is not None else None
+    if state is None or result is None:
+        return None
+    pos = Positions(state.lines, ls.codec)
+    start, end = pos.from_client(params.range.start), pos.from_client(params.range.end)
+    only = list(params.context.only) if params.context.only else None
+    fingerprints = {d.data.get("fingerprint") for d in params.context.diagnostics
+                    if d.source == "condhint" and isinstance(d.data, dict)}
+    findings = actions.findings_in(result, start, end, fingerprints)
+    cfg = _cfg(ls, state)
+    plans: list[actions.Plan] = []
+    fixing = ls.settings.config.fixes and rewrites() is not None
+    if fixing and actions.wanted(actions.QUICKFIX, only):
+        for f in findings:
+            plans += actions.fix_plans(state.text, f, await _fixes(ls, f, cfg))
+    if fixing and actions.wanted(actions.FIX_ALL, only):
+        chosen = []
+        for f in result.findings:
+            ready, fixes = ls.background.fixes_of(f)
+            if ready and fixes:
+                chosen.append((f, fixes[0]))
+        plan = actions.fix_all_plan(state.text, chosen)
+        if plan is not None:
+            plans.append(plan)
+    if actions.wanted(actions.QUICKFIX, only) or actions.wanted(actions.REFACTOR, only):
+        plans += [p for p in actions.comment_plans(state.lines, result, findings, start)
+                  if actions.wanted(p.kind, only)]
+    state.plans = {p.id: p for p in plans}
+    diagnostics = dict(zip((f.fingerprint() for f in result.findings), ls.analyser.diagnostics(state)))
+    lazy = ls.resolve_edits
+    out = []
+    for p in plans:
+        action = types.CodeAction(title=p.title, kind=p.kind, is_preferred=p.preferred or None,
+                                  diagnostics=[diagnostics[f.fingerprint()] for f in p.findings
+                                               if f.fingerprint() in diagnostics] or None)
+        if lazy and not p.id.startswith(("ignore:", "range:")):
+            action.data = {"uri": state.uri, "id": p.id, "generation": state.generation}
+        else:
+            action.edit = _edit(ls, state, p)
+        out.append(action)
+    return out
+
+
+async def _fixes(ls: "CondhintServer", finding, cfg) -> list:  # noqa: ANN001
+    ready, fixes = ls.background.fixes_of(finding)
+    if ready:
+        return fixes
+    try:
+        await asyncio.wait_for(asyncio.shield(ls.background.want_fixes(finding, cfg)), FIX_WAIT)
+    except asyncio.TimeoutError:
+        return []  # still searching: offered on a later request
+    return ls.background.fixes_of(finding)[1]
+
+
+def _edit(ls: "CondhintServer", state: DocumentState, plan: actions.Plan) -> types.WorkspaceEdit:
+    pos = Positions(state.lines, ls.codec)
+    edits = [to_lsp_text_edit(r, pos) for r in plan.edits()]
+    return to_lsp_workspace_edit(state.uri, state.version, edits, ls.document_changes)
+
+
+def resolve_code_action(ls: "CondhintServer", action: types.CodeAction) -> types.CodeAction:
+    data = action.data if isinstance(action.data, dict) else {}
+    state = ls.docs.get(str(data.get("uri", "")))
+    if state is None or data.get("generation") != state.generation:
+        return action  # the document changed since: no edit (the client asks again)
+    plan = state.plans.get(str(data.get("id")))
+    if plan is not None:
+        action.edit = _edit(ls, state, plan)
+    return action
+
+
+# ---- commands ----------------------------------------------------------------------------------------------
+def statistics(ls: "CondhintServer", uri: str) -> dict[str, Any]:
+    """How the last analysis of a document went (pieces analysed and reused, expressions analysed)."""
+    state = ls.docs.get(uri)
+    if state is None or state.result is None:
+        return {}
+    r = state.result
+    return {"version": state.result_doc_version, "findings": len(r.findings), "pieces": len(r.pieces),
+            "analysed": r.analysed, "reused": r.reused, "expressions_analysed": r.site_misses,
+            "seconds": round(r.seconds, 4), "status": r.status}
