@@ -96,7 +96,7 @@ def check_target(target: Target, cfg: Config, fixes: bool = False) -> FileReport
 
 
 def rewrite_search() -> Callable[..., Iterable] | None:
-    """`condhint.rewrites.fixes_for`, or None where the rewrites package is not installed (yet)."""
+    """`condhint.rewrites.fixes_for`, or None where the rewrites package is not installed."""
     try:
         from condhint.rewrites import fixes_for
     except ImportError as exc:
@@ -107,12 +107,12 @@ def rewrite_search() -> Callable[..., Iterable] | None:
 
 
 def attach_fixes(analysis: ModuleAnalysis, cfg: Config) -> None:
-    fixes_for = rewrite_search()
-    if fixes_for is None:
+    """Verified fixes on the findings (inside the worker process, where the expression DAGs live)."""
+    if rewrite_search() is None:
         return
-    for f in analysis.report.findings:
-        if f.category == "formula" and not f.fixes:
-            f.fixes = list(fixes_for(f, analysis, cfg))
+    from condhint.rewrites import attach_fixes as attach
+
+    attach(analysis, cfg)
 
 
 def _check_in_worker(job: tuple[Target, Config, bool]) -> FileReport:

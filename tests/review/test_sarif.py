@@ -148,3 +148,24 @@ def test_sarif_through_the_command_line_with_output_file(tmp_path: Path, capsys)
     validate(doc)
     (res,) = doc["runs"][0]["results"]
     assert res["locations"][0]["physicalLocation"]["region"]["startColumn"] == len("    return ") + 1
+
+
+def test_demo_fixes_from_the_rewrite_search_apply_cleanly():
+    """With the rewrite search installed, every SARIF fix of the demo applies to the real file and parses."""
+    from condhint.runner import check_paths, rewrite_search
+
+    if rewrite_search() is None:
+        pytest.skip("the rewrites package is not installed")
+    result = check_paths([str(MARRAM)], Config(), jobs=1, fixes=True)
+    doc = document(result.reports, {})
+    validate(doc)
+    fixes = [(r, fx) for r in doc["runs"][0]["results"] for fx in r.get("fixes", [])]
+    assert len(fixes) >= 10  # docs/examples/README.md lists a stable rewrite for most findings
+    for res, fx in fixes:
+        (change,) = fx["artifactChanges"]
+        path = unquote(urlparse(change["artifactLocation"]["uri"]).path)
+        text = Path(path).read_text(encoding="utf-8")
+        fixed = apply_replacements(text, [change])
+        ast.parse(fixed)
+        inserted = change["replacements"][-1]["insertedContent"]["text"]
+        assert inserted in fixed and fixed != text

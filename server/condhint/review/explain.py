@@ -22,7 +22,6 @@ from condhint.numeric.analysis import Analysis, analyse
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
 from condhint.numeric.functions import FUNCTIONS
 from condhint.review.profile import Profile, input_names, keep_where_guards_hold, profile, swept_input, sweep
-from condhint.review.sources import import_line
 from condhint.site import Site
 
 TABLE_ROWS = 12
@@ -128,19 +127,30 @@ def contributions(p: Profile, at: int, limit: int = 5) -> list[Contribution]:
 
 
 def apply_fix(text: str, fix: Fix) -> tuple[str, int, int]:
-    """The text after the fix: (new text, lines added by imports before it, lines the replacement adds)."""
+    """The text after the fix: (new text, lines added above it by imports, lines the replacement adds).
+
+    The rewrites package applies fixes (and their imports) where it is installed; a `--try` formula, which
+    needs no imports, is spliced in directly otherwise.
+    """
     from condhint.reading.source import Source
 
-    lines = Source(text).lines
     s = fix.span
-    head = lines[s.line - 1][: s.col]
-    tail = lines[s.end_line - 1][s.end_col:]
-    lines[s.line - 1: s.end_line] = (head + fix.replacement + tail).split("\n")
     grown = fix.replacement.count("\n") - (s.end_line - s.line)
-    at = import_line(text)
-    imports = [i for i in fix.imports if i.strip()]
-    lines[at - 1: at - 1] = imports
-    return "\n".join(lines), (len(imports) if at <= s.line else 0), grown
+    try:
+        from condhint.rewrites import apply_fixes
+    except ImportError:
+        apply_fixes = None
+    if apply_fixes is not None:
+        new = apply_fixes(text, [fix])
+    else:
+        if fix.imports:
+            raise ValueError("applying a fix with imports needs the rewrites package")
+        lines = Source(text).lines
+        head, tail = lines[s.line - 1][: s.col], lines[s.end_line - 1][s.end_col:]
+        lines[s.line - 1: s.end_line] = (head + fix.replacement + tail).split("\n")
+        new = "\n".join(lines)
+    shift = len(Source(new).lines) - len(Source(text).lines) - grown  # imports go above the code
+    return new, shift, grown
 
 
 def _fixed_site(ma: ModuleAnalysis, site: Site, fix: Fix, shift: int, grown: int) -> Site | None:
@@ -157,7 +167,11 @@ def _fixed_site(ma: ModuleAnalysis, site: Site, fix: Fix, shift: int, grown: int
 def measure_fix(text: str, path: str, cfg: Config, site: Site, cand: Candidate, points: dict[str, np.ndarray]
                 ) -> None:
     """Analyse the code as it reads after the fix and measure the fixed expression at the same points."""
-    new_text, shift, grown = apply_fix(text, cand.fix)
+    try:
+        new_text, shift, grown = apply_fix(text, cand.fix)
+    except ValueError as exc:
+        cand.note = str(exc)
+        return
     ma = analyse_module(new_text, path, cfg, cache=None)
     if ma.report.status != "ok":
         cand.note = "the fixed code does not parse"
