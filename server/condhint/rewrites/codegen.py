@@ -12,10 +12,14 @@ from __future__ import annotations
 import ast
 from collections import Counter
 from dataclasses import dataclass, field
-from typing import Callable
+from typing import TYPE_CHECKING, Callable
 
 from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, topological
 from condhint.numeric.functions import FUNCTIONS
+
+if TYPE_CHECKING:
+    from condhint.expr import Span
+    from condhint.reading.source import Source
 
 # Python precedence levels (higher binds tighter).
 SELECT_P, COMPARE_P, ADD_P, MUL_P, UNARY_P, POW_P, ATOM_P = 1, 6, 11, 12, 13, 14, 16
@@ -57,6 +61,46 @@ def precedence(text: str) -> int:
     if isinstance(tree, (ast.Lambda, ast.NamedExpr)):
         return 0
     return ATOM_P
+
+
+def needed_by(parent: ast.AST, child: ast.AST) -> int:
+    """The least precedence an expression needs to stand unparenthesised as this child of `parent`."""
+    if isinstance(parent, ast.BinOp):
+        p = _BINOP_P[type(parent.op)]
+        if isinstance(parent.op, ast.Pow):
+            return POW_P + 1 if child is parent.left else UNARY_P
+        return p if child is parent.left else p + 1
+    if isinstance(parent, ast.UnaryOp):
+        return 5 if isinstance(parent.op, ast.Not) else UNARY_P
+    if isinstance(parent, ast.Compare):
+        return COMPARE_P + 1
+    if isinstance(parent, ast.BoolOp):
+        return (4 if isinstance(parent.op, ast.And) else 3)
+    if isinstance(parent, ast.IfExp):
+        return SELECT_P if child is parent.orelse else SELECT_P + 1
+    if isinstance(parent, (ast.Attribute, ast.Await)) or (isinstance(parent, ast.Call) and child is parent.func) or (
+            isinstance(parent, ast.Subscript) and child is parent.value):
+        return ATOM_P
+    return SELECT_P
+
+
+_PLACES: dict[int, tuple[ast.Module, dict]] = {}
+
+
+def place(tree: ast.Module, source: "Source", span: "Span") -> int | None:
+    """The precedence needed where the expression with this span stands in the tree (None if not found)."""
+    hit = _PLACES.get(id(tree))
+    if hit is None or hit[0] is not tree:
+        index: dict = {}
+        for parent in ast.walk(tree):
+            for child in ast.iter_child_nodes(parent):
+                if isinstance(child, ast.expr):
+                    index.setdefault(source.span(child), (parent, child))
+        if len(_PLACES) > 8:
+            _PLACES.clear()
+        _PLACES[id(tree)] = hit = (tree, index)
+    found = hit[1].get(span)
+    return None if found is None else needed_by(*found)
 
 
 def is_expression(text: str) -> bool:

@@ -66,6 +66,7 @@ class Writer:
     def __init__(self, ma: "ModuleAnalysis", site: Site, target: Node) -> None:
         assert ma.source is not None and ma.walker is not None and target.span is not None
         self.source = ma.source
+        self.tree = ma.walker.tree
         self.target = target
         self.style = codegen.Style.of(ma.walker.tree)
         self.site_nodes = topological(site.root)
@@ -80,32 +81,39 @@ class Writer:
 
     def write(self, replacement: Node) -> tuple[str, list[str], Span]:
         """The replacement text, the imports it needs, and the span it replaces (the target's, widened over
-        grouping parentheses that a call or name no longer needs)."""
+        grouping parentheses that a call or a name no longer needs)."""
         spelling = codegen.Spelling.for_site(self.style, self.site_nodes)
         text, prec = codegen.Emitter(spelling, self.reuse, self.names).text(replacement)
         span = self.target.span
         assert span is not None
-        if prec < codegen.precedence(self.target.text):
+        grouping = self._grouping(span)
+        if grouping is not None and prec == codegen.ATOM_P:
+            span = grouping
+        elif grouping is None and prec < self._required():
             text = f"({text})"
-        elif prec == codegen.ATOM_P:
-            span = self._without_grouping(span)
         codegen.check_side_effects(self.target.text, text, replacement)
         ast.parse(text, mode="eval")
         return text, spelling.imports, span
 
-    def _without_grouping(self, span: Span) -> Span:
+    def _grouping(self, span: Span) -> Span | None:
+        """The span including the parentheses around the target when they only group it."""
         if span.line != span.end_line:
-            return span
+            return None
         line = self.source.lines[span.line - 1]
         left, right = line[: span.col].rstrip(), line[span.end_col:]
         if not left.endswith("(") or not right.lstrip().startswith(")"):
-            return span
+            return None
         before = left[:-1].rstrip()
         word = before[len(before.rstrip("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ0123456789_")):]
         if (word and not keyword.iskeyword(word)) or before.endswith((")", "]", "}", "'", '"')):
-            return span  # the parentheses of a call, or after a subscript or string: not grouping
+            return None  # the parentheses of a call, or after a subscript or a string
         close = span.end_col + (len(right) - len(right.lstrip())) + 1
         return Span(span.line, len(left) - 1, span.end_line, close)
+
+    def _required(self) -> int:
+        """The precedence the target's place in the code needs (its own, when the place is not found)."""
+        found = codegen.place(self.tree, self.source, self.target.span)  # type: ignore[arg-type]
+        return found if found is not None else codegen.precedence(self.target.text)
 
 
 def visible_names(ma: "ModuleAnalysis", site: Site, target: Node) -> dict[int, str]:
@@ -195,8 +203,10 @@ def fixes_for(finding: Finding, ma: "ModuleAnalysis", cfg: Config, cache: "Analy
     site: Site | None = getattr(finding, "_site", None)
     if site is None or finding.category not in FIXABLE or ma.source is None or ma.walker is None:
         return []
-    deadline = Deadline(seconds)
     analysis = ma.analyses.get(id(site))
+    if analysis is not None and analysis.category == "domain-range":
+        return []  # the declared range itself leaves the domain: no rewrite changes that
+    deadline = Deadline(seconds)
     nodes = topological(site.root)
     culprit = nodes[analysis.culprit] if analysis is not None and analysis.culprit is not None else None
     source = ma.source
@@ -252,11 +262,12 @@ def _fixable_findings(findings: list[Finding]) -> Counter[tuple[str, str, str]]:
 
 def _rechecked(verified: list[Verified], finding: Finding, ma: "ModuleAnalysis", cfg: Config,
                cache: "AnalysisCache | None") -> list[Fix]:
-    """Fixes whose patched file re-analyses without the loss and without any new finding."""
+    """Fixes whose patched file re-analyses without this finding and without any new one."""
     from condhint.engine import DEFAULT_CACHE, analyse_module
 
     assert ma.source is not None
     before = _fixable_findings(ma.report.findings)
+    (own,) = _fixable_findings([finding]) or [None]
     quiet = replace(cfg, kappa_formula=False)
     out: list[Fix] = []
     for v in verified[:RECHECKED]:
@@ -268,7 +279,8 @@ def _rechecked(verified: list[Verified], finding: Finding, ma: "ModuleAnalysis",
         again = analyse_module(patched, ma.report.path, quiet, cache if cache is not None else DEFAULT_CACHE)
         if again.report.status != "ok":
             continue
-        if _fixable_findings(again.report.findings) - before:
+        after = _fixable_findings(again.report.findings)
+        if after - before or after[own] >= before[own]:
             continue
         out.append(fix)
     return out
