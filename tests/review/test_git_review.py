@@ -98,3 +98,19 @@ def test_bad_baseline_is_a_usage_error(marram_repo: Path, capsys):
     assert code == 2 and "not a condhint baseline" in err
     code, _, err = cli(capsys, "check", "marram", "--baseline", "missing.json")
     assert code == 2 and "no such file" in err
+
+
+def test_diff_base_in_notebooks_compares_cells(marram_repo: Path, capsys):
+    from tests.review.test_notebooks import notebook
+
+    cells = [("code", "import math"),
+             ("code", "def a(x):  # condhint: x in [1e6, 1e15]\n    return math.sqrt(x + 1) - math.sqrt(x)"),
+             ("code", "def b(t):  # condhint: t in [1e-12, 1e-6]\n    return math.exp(t) - 1")]
+    nb = notebook(marram_repo / "lab.ipynb", cells)
+    git(marram_repo, "add", "lab.ipynb")
+    git(marram_repo, "commit", "-q", "-m", "notebook")
+    # Insert a markdown cell on top (every cell number shifts) and edit the finding's line in the last cell.
+    changed = [("markdown", "# Notes")] + cells[:2] + [("code", cells[2][1].replace("- 1", "- 1.0"))]
+    notebook(nb, changed)
+    doc = cli_json(capsys, "check", "lab.ipynb", "--format", "json", "--diff-base", "HEAD")
+    assert [(f["cell"], f["line"], f["expression"]) for f in doc["findings"]] == [(4, 2, "math.exp(t) - 1.0")]

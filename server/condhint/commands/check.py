@@ -12,6 +12,7 @@ from condhint.review.options import Narrowing, add_review_options, print_notes, 
 from condhint.runner import check_paths
 
 HUMAN_FORMATS = ("text", "markdown")  # these show warnings and errors unless --min-severity says otherwise
+FIX_FORMATS = ("json", "sarif", "markdown")  # these carry verified fixes
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -38,7 +39,7 @@ def run(args: argparse.Namespace) -> int:
 
         cfg = replace(cfg, min_severity=args.min_severity) if args.format not in HUMAN_FORMATS else cfg
     narrowing = Narrowing(args)
-    result = check_paths(args.paths, cfg, fixes=args.format == "json" and cfg.fixes, **run_settings(args))
+    result = check_paths(args.paths, cfg, fixes=args.format in FIX_FORMATS and cfg.fixes, **run_settings(args))
     notes = narrowing.apply(result.reports)
     shown = args.min_severity or ("warning" if args.format in HUMAN_FORMATS else "info")
     options = {"min_severity": shown, "statistics": args.statistics and args.format != "text"}
