@@ -136,8 +136,11 @@ def _insert_line(text: str, tree: ast.Module, statement: str, module: str) -> st
     if before is not None:
         at = starts[before.lineno - 1]
         return text[:at] + statement + newline + text[at:]
-    if after is None:
-        return statement + newline + text
+    if after is None:  # before the first statement: a shebang, coding cookie or comments stay on top
+        if not body:
+            return text + ("" if not text or text.endswith(("\n", "\r")) else newline) + statement + newline
+        at = starts[body[0].lineno - 1]
+        return text[:at] + statement + newline + text[at:]
     end_line = after.end_lineno or after.lineno
     if end_line < len(starts):
         at = starts[end_line]
