@@ -389,7 +389,7 @@ class Walker:
                     self._scan(conv, child)
                 elif isinstance(child, ast.keyword):
                     self._scan(conv, child.value)
-                elif isinstance(child, ast.comprehension):
+                elif isinstance(child, ast.comprehension) and id(child.iter) not in conv.scanned:
                     self._scan(conv, child.iter)
         conv.scanned.add(id(expr))
         return node
@@ -565,6 +565,7 @@ class _Converter:
             return node
         if isinstance(e, (ast.Lambda,)):
             self.w._function(e, f"{self.scope}.<lambda>", self.env)
+            self.scanned.add(id(e.body))  # analysed as the lambda's scope: scanning it again is exponential
             return None
         if isinstance(e, (ast.ListComp, ast.SetComp, ast.GeneratorExp, ast.DictComp)):
             self._comprehension(e)
@@ -583,6 +584,9 @@ class _Converter:
             parts.extend(gen.ifs)
         for p in parts:
             self.w._scan(sub, p)
+        # Done here: the caller's scan must not walk these again (nested comprehensions were exponential).
+        self.scanned.update(id(p) for p in parts)
+        self.scanned.update(id(gen.iter) for gen in e.generators)
 
     def _compare(self, test: ast.expr) -> Node | None:
         if not (isinstance(test, ast.Compare) and len(test.ops) == 1 and type(test.ops[0]) in _CMPOPS):
