@@ -78,7 +78,7 @@ def describe(site: Site, node: Node, analysis: Analysis, cfg: Config, finding: F
     limiting, limiting_line = None, None
     if analysis.culprit is not None and analysis.culprit < len(nodes):
         c = nodes[analysis.culprit]
-        limiting = f"the {_label(c)} `{' '.join(c.text.split())}`" if c.text else f"the {_label(c)}"
+        limiting = f"{_label(c)} `{' '.join(c.text.split())}`" if c.text else _label(c)
         limiting_line = doc_line(c.span.line if c.span else None)
     inputs = []
     for name in analysis.names:

@@ -26,6 +26,7 @@ SHOW = types.WINDOW_SHOW_MESSAGE
 VSCODE = "visual-studio-code"  # push diagnostics, UTF-16, codeAction/resolve for edits
 NEOVIM = "neovim"  # latest: pull diagnostics, offers UTF-8, inlay hints
 NEOVIM_07 = "neovim@v0.7.0"  # like Debian's 0.7.2: push, UTF-16, work-done progress
+EMACS = "emacs"  # push, offers UTF-32/UTF-8/UTF-16, no codeAction/resolve (like eglot)
 
 
 class Recorder:
@@ -78,9 +79,10 @@ def make_client() -> LanguageClient:
 
 
 @asynccontextmanager
-async def running(profile: str, root: Path, init_options: Any = None, configuration: Any = None,
+async def running(profile: str | types.ClientCapabilities, root: Path, init_options: Any = None, configuration: Any = None,
                   started: list | None = None) -> AsyncIterator[LanguageClient]:
-    """A real server over stdio, initialised with the capabilities of `profile` and a workspace at `root`."""
+    """A real server over stdio, initialised with the capabilities of `profile` (a pytest-lsp profile name or
+    capabilities) and a workspace at `root`."""
     client = make_client()
     if configuration is not None:
         client.set_configuration(configuration, section="condhint")
@@ -91,7 +93,7 @@ async def running(profile: str, root: Path, init_options: Any = None, configurat
     try:
         uri = root.resolve().as_uri()
         result = await asyncio.wait_for(client.initialize_session(types.InitializeParams(
-            capabilities=client_capabilities(profile), root_uri=uri,
+            capabilities=client_capabilities(profile) if isinstance(profile, str) else profile, root_uri=uri,
             workspace_folders=[types.WorkspaceFolder(uri=uri, name=root.name)],
             initialization_options=init_options)), TIMEOUT)
         client.init_result = result  # type: ignore[attr-defined]

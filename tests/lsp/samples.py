@@ -26,7 +26,7 @@ def continuous_rate(fraction: float) -> float:
 
 
 def strain(ratio: float) -> float:
-    # condhint: 0.9999 <= ratio <= 1.0001, ratio ± 0.01%
+    # condhint: 1.0001 <= ratio <= 1.01, ratio ± 0.01%
     return ratio - 1.0
 '''
 

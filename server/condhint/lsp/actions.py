@@ -46,8 +46,11 @@ def overlaps(span: Span, start: tuple[int, int], end: tuple[int, int]) -> bool:
 
 # ---- rewrites -------------------------------------------------------------------------------------------------
 def _fix_title(fix: Fix, finding: Finding) -> str:
+    """The rewrite's title with its measured improvement (the rewrite engine's titles usually say it)."""
+    if "digit" in fix.title:
+        return fix.title
     before = fix.measured_digits_lost_before or finding.digits_lost or 0.0
-    return f"{fix.title} (digits lost {before:.1f} → {fix.measured_digits_lost_after:.1f}, measured)"
+    return f"{fix.title} (loses {fix.measured_digits_lost_after:.1f} instead of {before:.1f} digits, measured)"
 
 
 def _applied(text: str, fixes: list[Fix]) -> Callable[[], list[Replacement]]:

@@ -65,8 +65,9 @@ async def refresh_settings(ls: "CondhintServer", pushed: Any = None) -> None:
     ls.workspace_settings = workspace
     ls.settings = resolve(ls.root, ls.init_options, workspace)
     message = ls.settings.message()
-    if message and message != before.message():
-        ls.tell(message)
+    if message and message != ls.last_message:
+        ls.tell(message)  # one message per distinct set of problems, not one per re-read
+    ls.last_message = message
     if ls.settings.config.kappa_formula and not before.config.kappa_formula:
         ls.background.warm_up()
     if ls.settings == before:
@@ -285,7 +286,7 @@ def resolve_code_action(ls: "CondhintServer", action: types.CodeAction) -> types
 
 
 # ---- commands ----------------------------------------------------------------------------------------------
-def statistics(ls: "CondhintServer", uri: str) -> dict[str, Any]:
+def statistics(ls, uri: str) -> dict[str, Any]:  # noqa: ANN001 - pygls resolves command annotations at run time
     """How the last analysis of a document went (pieces analysed and reused, expressions analysed)."""
     state = ls.docs.get(uri)
     if state is None or state.result is None:

@@ -64,6 +64,7 @@ class CondhintServer(LanguageServer):
         self.pull = False
         self.loop: asyncio.AbstractEventLoop | None = None
         self.shut_down = False
+        self.last_message: str | None = None
         self.analyser = Analyser(self)
         self.background = Background()
 

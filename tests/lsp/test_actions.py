@@ -1,0 +1,110 @@
+"""Code actions end to end: an action's edit, applied as an editor applies it, removes the finding."""
+from __future__ import annotations
+
+import ast
+
+import pytest
+from lsprotocol import types
+
+from lsp_support import (EMACS, NEOVIM_07, VSCODE, apply_edits, edits_for, encoding_of, expect_diagnostics, open_document,
+                         range_of, replace_all, within)
+from samples import GROWTH, UNDECLARED
+
+pytestmark = pytest.mark.asyncio
+
+
+async def open_and_wait(client, path, text):
+    uri = path.resolve().as_uri()
+    done = expect_diagnostics(client, uri, version=1)
+    open_document(client, path, text)
+    return uri, (await within(done)).diagnostics
+
+
+async def actions_at(client, uri, rng, diagnostics, only=None):
+    return await within(client.text_document_code_action_async(types.CodeActionParams(
+        text_document=types.TextDocumentIdentifier(uri=uri), range=rng,
+        context=types.CodeActionContext(diagnostics=list(diagnostics), only=only))))
+
+
+async def edited(client, action):
+    """The action's edit, resolved first when the client resolves edits lazily."""
+    if action.edit is None:
+        action = await within(client.code_action_resolve_async(action))
+    assert action.edit is not None, action
+    return action.edit
+
+
+async def apply_and_reanalyse(client, uri, text, edit, version):
+    new = apply_edits(text, edits_for(edit, uri), encoding_of(client))
+    ast.parse(new)  # still Python
+    done = expect_diagnostics(client, uri, version=version)
+    replace_all(client, uri, new, version)
+    return new, (await within(done)).diagnostics
+
+
+@pytest.mark.parametrize("profile", [NEOVIM_07, VSCODE, EMACS])
+async def test_quick_fix_removes_the_finding(lsp, tmp_path, profile):
+    client = await lsp(profile, init_options={"debounceMs": 10})
+    uri, diags = await open_and_wait(client, tmp_path / "growth.py", GROWTH)
+    rng = range_of(GROWTH, "exp(rate * dt) - 1", encoding_of(client))
+    target = [d for d in diags if d.range == rng]
+    acts = await actions_at(client, uri, rng, target, only=[types.CodeActionKind.QuickFix])
+    fixes = [a for a in acts if a.title.startswith("Use ")]
+    assert fixes, [a.title for a in acts]
+    fix = fixes[0]
+    assert fix.kind == types.CodeActionKind.QuickFix and fix.is_preferred
+    assert "digits" in fix.title  # titled with the measured improvement
+    # Clients that resolve edits (resolveSupport: edit) get them lazily; Emacs (like eglot) at once.
+    resolve = client.capabilities.text_document.code_action.resolve_support
+    assert (fix.edit is None) == bool(resolve and "edit" in resolve.properties)
+    new, after = await apply_and_reanalyse(client, uri, GROWTH, await edited(client, fix), 2)
+    assert "exp(rate * dt) - 1" not in new
+    line = rng.start.line
+    assert not [d for d in after if d.range.start.line == line]
+    assert len(after) == len(diags) - 1
+    assert "expm1(rate * dt)" in new
+
+
+async def test_fix_all_applies_every_rewrite(lsp, tmp_path):
+    client = await lsp(NEOVIM_07, init_options={"debounceMs": 10})
+    uri, diags = await open_and_wait(client, tmp_path / "growth.py", GROWTH)
+    assert [d.code for d in diags].count("CH101") == 2
+    # Fix-all includes the rewrites found so far; ask for quick fixes once so both searches ran.
+    for needle in ("exp(rate * dt) - 1", "math.log(1 + fraction)"):
+        await actions_at(client, uri, range_of(GROWTH, needle, "utf-16"), [], only=[types.CodeActionKind.QuickFix])
+    whole = types.Range(start=types.Position(line=0, character=0), end=types.Position(line=0, character=0))
+    acts = await actions_at(client, uri, whole, [], only=["source.fixAll"])
+    assert [a.kind for a in acts] == ["source.fixAll.condhint"]
+    new, after = await apply_and_reanalyse(client, uri, GROWTH, await edited(client, acts[0]), 2)
+    assert [d.code for d in after] == ["CH201"]  # only the inherent sensitivity is left: no rewrite helps
+    assert "expm1" in new and "log1p" in new
+
+
+async def test_ignore_action_silences_the_finding(lsp, tmp_path):
+    client = await lsp(VSCODE, init_options={"debounceMs": 10})
+    uri, diags = await open_and_wait(client, tmp_path / "growth.py", GROWTH)
+    rng = range_of(GROWTH, "ratio - 1.0", "utf-16")
+    target = [d for d in diags if d.range == rng]
+    assert [d.code for d in target] == ["CH201"]
+    acts = await actions_at(client, uri, rng, target)
+    ignore = [a for a in acts if "ignore[CH201]" in a.title]
+    assert len(ignore) == 1 and ignore[0].edit is not None  # cheap edits are sent at once
+    new, after = await apply_and_reanalyse(client, uri, GROWTH, ignore[0].edit, 2)
+    assert "return ratio - 1.0  # condhint: ignore[CH201]" in new
+    assert not [d for d in after if d.code == "CH201"]
+    assert len(after) == len(diags) - 1
+
+
+async def test_range_comment_for_an_expression_on_the_default_range(lsp, tmp_path):
+    client = await lsp(NEOVIM_07, init_options={"debounceMs": 10})
+    uri, diags = await open_and_wait(client, tmp_path / "step.py", UNDECLARED)
+    rng = range_of(UNDECLARED, "math.sqrt(n + 1) - math.sqrt(n)", "utf-16")
+    acts = await actions_at(client, uri, rng, [d for d in diags if d.range == rng])
+    declare = [a for a in acts if a.title.startswith("Declare the range of n")]
+    assert len(declare) == 1, [a.title for a in acts]
+    new, _ = await apply_and_reanalyse(client, uri, UNDECLARED, await edited(client, declare[0]), 2)
+    assert "def poisson_step(n):  # condhint: 1e-06 <= n <= 1e+06\n" in new
+    # The range now comes from the comment.
+    h = await within(client.text_document_hover_async(types.HoverParams(
+        text_document=types.TextDocumentIdentifier(uri=uri), position=range_of(new, " - math", "utf-16").start)))
+    assert "`n ∈ [1e-06, 1e+06]` from a condhint comment" in h.contents.value

@@ -1,0 +1,106 @@
+"""Hover end to end: κ, per-input κᵢ, digits lost, ranges and their sources, the κ formula."""
+from __future__ import annotations
+
+import asyncio
+import math
+import re
+
+import pytest
+import sympy
+from lsprotocol import types
+
+from lsp_support import NEOVIM, NEOVIM_07, VSCODE, encoding_of, expect_diagnostics, open_document, position, within
+from samples import GROWTH
+
+pytestmark = pytest.mark.asyncio
+
+
+async def hover_at(client, uri: str, text: str, needle: str, offset: int = 0) -> types.Hover | None:
+    pos = position(text, needle, encoding_of(client))
+    pos = types.Position(line=pos.line, character=pos.character + offset)
+    return await within(client.text_document_hover_async(types.HoverParams(
+        text_document=types.TextDocumentIdentifier(uri=uri), position=pos)))
+
+
+def kappa_of(value: str) -> float:
+    m = re.search(r"condition number: `κ ≈ ([-+0-9.e]+)`", value)
+    assert m, value
+    return float(m.group(1))
+
+
+async def opened(client, tmp_path, text=GROWTH, name="growth.py"):
+    path = tmp_path / name
+    uri = path.resolve().as_uri()
+    done = expect_diagnostics(client, uri, version=1)
+    open_document(client, path, text)
+    if not client.init_result.capabilities.diagnostic_provider:
+        await within(done)
+    return uri
+
+
+@pytest.mark.parametrize("profile", [NEOVIM_07, VSCODE])
+async def test_hover_on_a_flagged_expression(lsp, tmp_path, profile):
+    client = await lsp(profile, init_options={"debounceMs": 10})
+    uri = await opened(client, tmp_path)
+    h = await hover_at(client, uri, GROWTH, "exp(rate * dt) - 1", offset=16)  # on the `-`
+    assert h is not None and h.contents.kind == types.MarkupKind.Markdown
+    md = h.contents.value
+    assert "CH101 avoidable-loss" in md and "`exp(rate * dt) - 1`" in md
+    assert "κ ≈" in md and "κ_rate" in md and "κ_dt" in md
+    assert re.search(r"digits lost to rounding: [0-9.]+ measured against mpmath, [0-9.]+ predicted", md)
+    assert "`rate ∈ [1e-06, 0.001]` from a condhint comment" in md
+    assert "limited by the subtraction" in md
+    assert "Estimates over" in md
+    # κ of exp(x) - 1 is x eˣ/(eˣ - 1) (derivable), about 1 for small x, once for rate and once for dt:
+    # κ ≈ 2 while 12 digits are lost, so the loss is avoidable.
+    assert 1.99 <= kappa_of(md) <= 2.01
+    # The hover's range is the flagged operation.
+    enc = encoding_of(client)
+    assert h.range.start == position(GROWTH, "exp(rate * dt) - 1", enc)
+    assert h.range.end == position(GROWTH, "exp(rate * dt) - 1", enc, at_end=True)
+
+
+async def test_hover_on_any_subexpression(lsp, tmp_path):
+    client = await lsp(NEOVIM)
+    uri = await opened(client, tmp_path)
+    # `rate * dt`: κ of a product is 2, one for each factor (derivable; Higham 2002).
+    h = await hover_at(client, uri, GROWTH, "rate * dt", offset=5)
+    md = h.contents.value
+    assert "`rate * dt`" in md and "CH101" not in md
+    assert kappa_of(md) == pytest.approx(2.0, rel=1e-6)
+    assert "κ_rate ≈ 1`" in md and "κ_dt ≈ 1`" in md
+    # `1 + fraction`: κ = f/(1 + f) ≈ f, tiny on [1e-12, 1e-3] (derivable): well-conditioned itself.
+    h = await hover_at(client, uri, GROWTH, "1 + fraction", offset=2)
+    md = h.contents.value
+    assert "`1 + fraction`" in md
+    assert kappa_of(md) == pytest.approx(1e-3 / (1 + 1e-3), rel=1e-3)
+    # Off any expression: no hover.
+    assert await hover_at(client, uri, GROWTH, '"""Culture') is None
+
+
+async def test_hover_shows_declared_uncertainty_and_the_kappa_formula(lsp, tmp_path):
+    client = await lsp(VSCODE, init_options={"debounceMs": 10})
+    uri = await opened(client, tmp_path)
+
+    async def formula_ready() -> str:
+        while True:
+            h = await hover_at(client, uri, GROWTH, "ratio - 1.0", offset=6)
+            if "κ formula: `" in h.contents.value:
+                return h.contents.value
+            assert "κ formula: being derived" in h.contents.value
+            await asyncio.sleep(0.1)  # poll: the formula is derived in the background
+
+    md = await within(formula_ready(), 60)
+    assert "`ratio ± 0.01%`" in md and "result uncertain by" in md
+    # κ of x - c is |x / (x - c)| (common practice): worst at the range's end 1.0001, 1.0001/0.0001;
+    # with ± 0.01% on ratio the result is uncertain by κ · 0.01% ≈ ± 100%.
+    assert kappa_of(md) == pytest.approx(1.0001 / 1e-4, rel=1e-3)
+    m = re.search(r"result uncertain by `± ([0-9.e+]+)%`", md)
+    assert m and float(m.group(1)) == pytest.approx(100 * 1e-4 * 1.0001 / 1e-4, rel=0.01)
+    # The formula, checked against |x/(x - 1)| at a few points (sympy reads our own output here).
+    text = re.search(r"κ formula: `([^`]+)`", md).group(1)
+    ratio = sympy.Symbol("ratio", real=True)
+    expr = sympy.sympify(text, locals={"ratio": ratio})
+    for x in (0.5, 0.9999, 1.0001, 3.0):
+        assert float(expr.subs(ratio, x)) == pytest.approx(abs(x / (x - 1)), rel=1e-12)
+    assert math.isfinite(kappa_of(md))
