@@ -153,12 +153,17 @@ def inputs(node: Node) -> set[str]:
     return {n.name for n in topological(node) if n.kind == INPUT and n.name is not None}
 
 
-def substitute(root: Node, target: Node, replacement: Node) -> Node:
-    """`root` with the node `target` (by identity) replaced; shared structure is kept."""
-    if root is target:
+def substitute(root: Node, target: Node, replacement: Node, by_key: bool = False) -> Node:
+    """`root` with the node `target` replaced (by identity, or every node computing the same with `by_key`);
+    shared structure is kept."""
+    if root is target or (by_key and same(root, target)):
         return replacement
     done: dict[int, Node] = {id(target): replacement}
+    key = target.key() if by_key else None
     for node in topological(root):
+        if key is not None and node.key() == key:
+            done[id(node)] = replacement
+            continue
         if id(node) in done or not node.args:
             continue
         args = tuple(done.get(id(a), a) for a in node.args)

@@ -232,9 +232,9 @@ def fixes_for(finding: Finding, ma: "ModuleAnalysis", cfg: Config, cache: "Analy
             contexts[id(t)] = Context(bench, set(writer(t).names))
         return contexts[id(t)]
 
-    verified: list[Verified] = []
     seen: set[tuple[int, str]] = set()
     for stage in (lambda: _named(tgts, ctx_for), lambda: _searched(tgts, ctx_for, deadline)):
+        verified: list[Verified] = []
         for p in stage():
             if deadline.at is not None and time.perf_counter() > deadline.at:
                 break
@@ -250,10 +250,11 @@ def fixes_for(finding: Finding, ma: "ModuleAnalysis", cfg: Config, cache: "Analy
             if ev.ok:
                 verified.append(Verified(p.rule, p.title, p.target, p.replacement, text, imports, span, ev,
                                          p.cost, p.order))
-        if verified:
-            break
-    verified.sort(key=Verified.rank)
-    return _rechecked(verified, finding, ma, cfg, cache)
+        verified.sort(key=Verified.rank)
+        fixes = _rechecked(verified, finding, ma, cfg, cache)
+        if fixes:
+            return fixes
+    return []
 
 
 def _fixable_findings(findings: list[Finding]) -> Counter[tuple[str, str, str]]:

@@ -29,7 +29,7 @@ from condhint.rewrites.context import Context
 
 TRANSFORMS: tuple[tuple[str, str], ...] = (
     ("together", "Combine into one fraction"),
-    ("cancel", "Cancel common factors"),
+    ("cancel", "Expand into one fraction and cancel terms"),
     ("factor", "Factor the expression"),
     ("radsimp", "Rationalise the square roots"),
     ("trigsimp", "Simplify the trigonometric expression"),
@@ -81,7 +81,7 @@ def series_variable(target: Node) -> Node | None:
     inner = [n for n in topological(target) if n is not target and n.kind != CONST and dag.inputs(n) == names]
     for u in sorted(inner, key=dag.size, reverse=True):
         hole = Node(INPUT, name=SERIES_VAR, text=SERIES_VAR)
-        if dag.inputs(dag.substitute(target, u, hole)) == {SERIES_VAR}:
+        if dag.inputs(dag.substitute(target, u, hole, by_key=True)) == {SERIES_VAR}:
             return u
     return None
 
@@ -107,8 +107,10 @@ def _series_terms(expr: Any, u: sp.Symbol, count: int) -> list[tuple[Fraction, i
 def series_node(terms: list[tuple[Fraction, int]], u: Node) -> Node:
     """c₀·u^k₀ + c₁·u^k₁ + … written as `u**3 / 6 - u**5 / 120 + …` (leading term first)."""
     def term(c: Fraction, k: int) -> Node:
-        base = u if k == 1 else dag.power(u, k)
         a = abs(c)
+        if k == 0:
+            return dag.const(a)
+        base = u if k == 1 else dag.power(u, k)
         num = base if a.numerator == 1 else dag.mul(dag.const(a.numerator), base)
         return num if a.denominator == 1 else dag.div(num, dag.const(a.denominator))
 
@@ -137,18 +139,18 @@ def series(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Found]:
     if not len(uv):
         return
     lo, hi = float(uv.min()), float(uv.max())
+    x = Node(INPUT, name=SERIES_VAR, text=SERIES_VAR)
+    local = dag.substitute(target, u, x, by_key=True)
     try:
-        tr = sym.to_sympy(target, {id(u)}, lambda n: n is u and ctx.sign(u) == 1, exact_forms=True)
+        tr = sym.to_sympy(local, set(), lambda n: n is x and ctx.sign(u) == 1, exact_forms=True)
     except ValueError:
         return
-    (var,) = [s for s, n in tr.symbols.items() if n is u] or [None]
+    (var,) = [s for s, n in tr.symbols.items() if n is x] or [None]
     if var is None or tr.expr.free_symbols != {var}:
         return
     grid_u = np.unique(np.concatenate([np.geomspace(lo, hi, 48) if hi > lo else np.array([lo]), [lo, hi]]))
     signs = [1.0] if ctx.sign(u) == 1 else [1.0, -1.0] if ctx.sign(u) == 0 else [-1.0]
     grid = np.concatenate([s * grid_u for s in signs])
-    x = Node(INPUT, name=SERIES_VAR, text=SERIES_VAR)
-    local = dag.substitute(target, u, x)
     try:
         exact = _exact(local, grid, deadline)
         orig = _lost(forward(topological(local), {SERIES_VAR: grid}, F64_BACKEND, len(grid))[id(local)], exact,

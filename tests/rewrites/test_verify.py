@@ -1,0 +1,86 @@
+"""Verification (design §3): candidates that are not equivalent, or worse somewhere, are rejected; the
+evidence recorded agrees with our own mpmath measurement; proofs are sympy's, within a time budget."""
+from __future__ import annotations
+
+import math
+import time
+
+import mpmath
+import numpy as np
+
+from condhint.config import Config
+from condhint.rewrites import dag
+from condhint.rewrites.verify import Bench, prove
+from tests.rewrites.support import analysed, digits_lost, site_with
+
+
+def _judge(source: str, text: str, build):
+    ma = analysed(source)
+    site, node = site_with(ma, text)
+    bench = Bench(site, Config())
+    cand = build(node)
+    return bench.judge(node, cand, dag.substitute(site.root, node, cand), False, None), bench, node, cand
+
+
+SQRT_DIFF = "import math\ndef f(x):  # condhint: 1e6 <= x <= 1e15\n    return math.sqrt(x + 1) - math.sqrt(x)\n"
+
+
+def test_an_approximation_is_not_equivalent():
+    # 1/(2·sqrt(x)) is the leading term of sqrt(x+1) − sqrt(x) (common practice), not the same function.
+    ev, *_ = _judge(SQRT_DIFF, "math.sqrt(x + 1) - math.sqrt(x)",
+                    lambda n: dag.div(dag.const(1), dag.mul(dag.const(2), n.args[1])))
+    assert not ev.ok and ev.reason.startswith("not equivalent")
+
+
+def test_an_equivalent_formula_that_is_worse_somewhere_is_rejected():
+    # 1/(sqrt(x²+1) − x) equals x + sqrt(x²+1): better for x < 0, but it cancels for x > 0 (common practice).
+    src = "import math\ndef f(x):  # condhint: -1e8 <= x <= 1e3\n    return x + math.sqrt(x*x + 1)\n"
+
+    def conjugate(n):
+        root = n.args[1]
+        return dag.div(dag.const(1), dag.sub(root, n.args[0]))
+
+    ev, *_ = _judge(src, "x + math.sqrt(x*x + 1)", conjugate)
+    assert ev.after <= ev.before - 1 and ev.worse_by > 1
+    assert not ev.ok and "worse" in ev.reason
+
+
+def test_a_candidate_that_is_no_better_is_rejected():
+    src = "import math\ndef f(x):  # condhint: 1e-3 <= x <= 0.1\n    return math.sqrt(x + 1) - math.sqrt(x)\n"
+    ev, *_ = _judge(src, "math.sqrt(x + 1) - math.sqrt(x)",
+                    lambda n: dag.div(dag.const(1), dag.add(n.args[0], n.args[1])))
+    assert not ev.ok and "not accurate enough" in ev.reason
+
+
+def test_recorded_evidence_matches_an_independent_measurement_on_the_same_samples():
+    ev, bench, node, cand = _judge(SQRT_DIFF, "math.sqrt(x + 1) - math.sqrt(x)",
+                                   lambda n: dag.div(dag.const(1), dag.add(n.args[0], n.args[1])))
+    assert ev.ok and ev.proven
+    xs = bench.cols["x"]
+    with mpmath.workdps(60):
+        before = max(digits_lost(math.sqrt(x + 1) - math.sqrt(x), mpmath.sqrt(x + 1) - mpmath.sqrt(x))
+                     for x in map(float, xs))
+        after = max(digits_lost(1 / (math.sqrt(x + 1) + math.sqrt(x)), mpmath.sqrt(x + 1) - mpmath.sqrt(x))
+                    for x in map(float, xs))
+    # The checked points are a subset of the samples that includes the worst ones (reference: mpmath).
+    assert before - 0.5 <= ev.before <= before + 1e-9
+    assert ev.after <= after + 1e-9 and after <= 0.5
+
+
+def test_samples_include_the_ends_of_each_range():
+    ma = analysed(SQRT_DIFF)
+    site, _ = site_with(ma, "math.sqrt(x + 1) - math.sqrt(x)")
+    bench = Bench(site, Config())
+    assert np.isclose(bench.cols["x"].min(), 1e6) and np.isclose(bench.cols["x"].max(), 1e15)
+
+
+def test_proofs_use_sympy_and_give_up_within_their_budget():
+    ma = analysed(SQRT_DIFF)
+    site, node = site_with(ma, "math.sqrt(x + 1) - math.sqrt(x)")
+    bench = Bench(site, Config())
+    good = dag.div(dag.const(1), dag.add(node.args[0], node.args[1]))
+    assert prove(node, good, bench, 2.0)
+    wrong = dag.div(dag.const(1), dag.mul(dag.const(2), node.args[1]))
+    t0 = time.perf_counter()
+    assert not prove(node, wrong, bench, 0.5)
+    assert time.perf_counter() - t0 < 2.0
