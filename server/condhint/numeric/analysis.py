@@ -82,22 +82,58 @@ def _rounds(node: Node) -> bool:
     return True
 
 
-def _ratio(num: Any, den: Any, backend: Any) -> np.ndarray:
-    with np.errstate(all="ignore"):
-        return np.abs(backend.to_float(num / den)) if backend is MP_BACKEND else np.abs(num / den)
+_FLOATS: dict[int, tuple[Any, np.ndarray]] = {}  # id(array) -> (array, floats), cleared per analysis
+
+
+def _floats(a: Any) -> np.ndarray:
+    """binary64 values of an object array of mpmath numbers (or of a plain scalar)."""
+    if not isinstance(a, np.ndarray):
+        return np.array([float(a)])
+    if a.dtype != object:
+        return a.astype(float)
+    hit = _FLOATS.get(id(a))
+    if hit is not None and hit[0] is a:
+        return hit[1]
+    out = np.array([float(x) for x in a], dtype=float)
+    _FLOATS[id(a)] = (a, out)
+    return out
 
 
 def _safe_div(num: Any, den: Any, backend: Any) -> np.ndarray:
-    if backend is MP_BACKEND:
-        out = []
-        for a, b in zip(num, den):
-            try:
-                out.append(abs(float(a / b)) if b != 0 else math.inf)
-            except (ZeroDivisionError, OverflowError, ValueError):
-                out.append(math.inf)
-        return np.array(out, dtype=float)
+    """|num / den| per sample as binary64 (inf where den is 0)."""
+    if backend is not MP_BACKEND:
+        with np.errstate(all="ignore"):
+            return np.abs(num / den)
+    return _mp_ratio([num], den)
+
+
+def _mp_ratio(factors: list[Any], den: Any) -> np.ndarray:
+    """|Π factors / den| for mpmath arrays: in binary64 where that is exact enough, in mpmath where it is not."""
     with np.errstate(all="ignore"):
-        return np.abs(num / den)
+        num = np.ones(len(den))
+        for f in factors:
+            num = num * _floats(f)
+        d = _floats(den)
+        out = np.abs(num / d)
+        tiny = 1e-290
+        bad = ~np.isfinite(out) | (np.abs(d) < tiny) | (np.abs(num) < tiny) | ~np.isfinite(num) | ~np.isfinite(d)
+    for i in np.flatnonzero(bad):
+        try:
+            x = den[i] if isinstance(den, np.ndarray) else den
+            y = 1
+            for f in factors:
+                y = y * (f[i] if isinstance(f, np.ndarray) else f)
+            out[i] = abs(float(y / x)) if x != 0 else math.inf
+        except (ZeroDivisionError, OverflowError, ValueError, TypeError):
+            out[i] = math.inf
+    return out
+
+
+def _ratio(v: Any, a: Any, f: Any, backend: Any) -> np.ndarray:
+    if backend is MP_BACKEND:
+        return _mp_ratio([v, a], f)
+    with np.errstate(all="ignore"):
+        return np.abs(v * a / f)
 
 
 def _metrics(nodes: list[Node], vals: dict[int, Any], adj: dict[int, Any], names: list[str],
@@ -110,13 +146,13 @@ def _metrics(nodes: list[Node], vals: dict[int, Any], adj: dict[int, Any], names
     for name in names:
         node = by_name[name]
         a = adj.get(id(node))
-        kappa_i[name] = np.zeros(len(f)) if a is None else _safe_div(vals[id(node)] * a, f, backend)
+        kappa_i[name] = np.zeros(len(f)) if a is None else _ratio(vals[id(node)], a, f, backend)
     kappa = sum(kappa_i.values()) if kappa_i else np.zeros(len(f))
     terms = {}
     for k in rounding:
         node = nodes[k]
         a = adj.get(id(node))
-        terms[k] = np.zeros(len(f)) if a is None else _safe_div(vals[id(node)] * a, f, backend)
+        terms[k] = np.zeros(len(f)) if a is None else _ratio(vals[id(node)], a, f, backend)
     amp = sum(terms.values()) if terms else np.zeros(len(f))
     return np.asarray(kappa, dtype=float), kappa_i, np.asarray(amp, dtype=float), terms
 
@@ -127,10 +163,17 @@ def _digits(x: np.ndarray, total: float) -> np.ndarray:
     return np.minimum(d, total)
 
 
-def _reference(nodes: list[Node], cols: dict[str, np.ndarray], m: int, deadline: Deadline | None
-               ) -> tuple[dict[int, Any], int]:
-    """mpmath values at a precision that makes the result stable (checked by re-evaluating higher)."""
+def _reference(nodes: list[Node], cols: dict[str, np.ndarray], m: int, deadline: Deadline | None,
+               shallow: bool = False) -> tuple[dict[int, Any], int]:
+    """mpmath values at a precision that makes the result stable (checked by re-evaluating higher).
+
+    `shallow`: binary64 already shows that fewer than 12 digits cancel, so 50 digits leave ample margin and
+    one evaluation suffices.
+    """
     root = nodes[-1]
+    if shallow:
+        with mpmath.workdps(50):
+            return forward(nodes, cols, MP_BACKEND, m, deadline), 50
     dps = 40
     prev = None
     while True:
@@ -197,9 +240,12 @@ def analyse(site: Site, cfg: Config, root: Node | None = None, deadline: Deadlin
             n = int(keep.sum())
 
     rounding = [i for i, node in enumerate(nodes) if _rounds(node)]
-    with np.errstate(all="ignore"):
-        return _analyse(site, cfg, root, nodes, names, ranges, cols, bounds, n, declared, rounding, deadline,
-                        keep_points)
+    try:
+        with np.errstate(all="ignore"):
+            return _analyse(site, cfg, root, nodes, names, ranges, cols, bounds, n, declared, rounding, deadline,
+                            keep_points)
+    finally:
+        _FLOATS.clear()
 
 
 def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list[str],
@@ -238,7 +284,10 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
     idx = _subset([pred64, logk64, inner_bad.astype(float) * 99 + (~fin64) * 99], n, cfg.reference_samples)
     sub = {k: v[idx] for k, v in cols.items()}
     m = len(idx)
-    vmp, dps = _reference(nodes, sub, m, deadline)
+    r_sub = r64[idx]
+    shallow = bool(np.all(np.isfinite(r_sub)) and np.all(r_sub != 0) and np.max(pred64[idx]) < 12
+                   and not inner_bad[idx].any())
+    vmp, dps = _reference(nodes, sub, m, deadline, shallow)
     with mpmath.workdps(dps):
         adjmp, partials = reverse(nodes, vmp, MP_BACKEND, deadline)
         kmp, kimp, amp, terms = _metrics(nodes, vmp, adjmp, names, rounding, MP_BACKEND)
@@ -337,10 +386,7 @@ def _step_conditions(nodes: list[Node], vals: dict[int, Any], partials: dict[int
             if isinstance(p, float) and p == 0.0:
                 cs.append(np.zeros(len(v)))
                 continue
-            try:
-                cs.append(_safe_div(a * p, v, MP_BACKEND))
-            except TypeError:
-                cs.append(np.zeros(len(v)))
+            cs.append(_mp_ratio([a, p], v))
         out[k] = cs
     return out
 
