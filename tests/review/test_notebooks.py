@@ -56,3 +56,14 @@ def test_notebooks_in_other_languages_are_not_analysed(tmp_path: Path, capsys):
     (tmp_path / "bad.ipynb").write_text("{not json")
     code, out, _ = cli(capsys, "check", str(tmp_path / "bad.ipynb"), "--format", "json")
     assert json.loads(out)["files"][0]["status"] == "error"
+
+
+def test_explain_a_notebook_cell(tmp_path: Path, capsys):
+    nb = notebook(tmp_path / "growth.ipynb")
+    code, out, err = cli(capsys, "explain", f"{nb}:7:3", "--format", "json", "--points", "16")
+    assert code == 0, err
+    doc = json.loads(out)
+    assert (doc["cell"], doc["line"]) == (7, 3) and doc["expression"] == "math.sqrt(n + 1) - math.sqrt(n)"
+    assert (doc["finding"]["cell"], doc["finding"]["line"], doc["finding"]["code"]) == (7, 3, "CH101")
+    assert cli(capsys, "explain", f"{nb}:3")[0] == 2  # the cell is missing
+    assert cli(capsys, "explain", f"{nb}:5:1")[0] == 2  # cell 5 does not parse

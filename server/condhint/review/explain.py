@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, replace
-from typing import Any
+from typing import Any, Callable
 
 import numpy as np
 
@@ -72,6 +72,13 @@ class Explanation:
     contributions: list[Contribution] = field(default_factory=list)
     candidates: list[Candidate] = field(default_factory=list)
     total_digits: float = 15.95
+    # (cell, line within the cell) of a line of the analysed text: notebooks are analysed as joined cells.
+    cell_line: Callable[[int], tuple[int | None, int]] = lambda line: (None, line)
+
+    def line_label(self, line: int) -> str:
+        """A line as the user writes it: LINE, or CELL:LINE in a notebook."""
+        cell, ln = self.cell_line(line)
+        return str(ln) if cell is None else f"{cell}:{ln}"
 
 
 def locate(ma: ModuleAnalysis, line: int, col: int | None) -> tuple[Site, Finding | None]:
@@ -251,11 +258,11 @@ def render(e: Explanation, note: str = "") -> str:
     """The explanation as text for a terminal."""
     s, a, f = e.site, e.analysis, e.finding
     total = e.total_digits
-    out = [f"{e.path}:{s.span.line}:{s.span.col + 1}  in {s.scope or 'module level'}",
+    out = [f"{e.path}:{e.line_label(s.span.line)}:{s.span.col + 1}  in {s.scope or 'module level'}",
            f"    {' '.join(s.root.text.split())}", ""]
     if f is not None:
         out += [f"finding {f.code} {f.name} ({f.severity}{', suppressed' if f.suppressed else ''}) at "
-                f"{f.span.line}:{f.span.col + 1} `{' '.join(f.expression.split())}`", f"    {f.message}", ""]
+                f"{e.line_label(f.span.line)}:{f.span.col + 1} `{' '.join(f.expression.split())}`", f"    {f.message}", ""]
     else:
         out += ["no finding here: the expression is accurate enough on its range", ""]
     out.append("inputs")
@@ -282,7 +289,7 @@ def render(e: Explanation, note: str = "") -> str:
         at = ", ".join(f"{k} = {num(float(v[worst]), 3)}" for k, v in p.cols.items())
         out += ["", f"where rounding is magnified (at {at}; u = {cfg_u(total)})"]
         for i, c in enumerate(e.contributions, 1):
-            where = f"{c.span.line}:{c.span.col + 1}" if c.span else "-"
+            where = f"{e.line_label(c.span.line)}:{c.span.col + 1}" if c.span else "-"
             out.append(f"    {i}. {c.label:<14} `{' '.join(c.text.split())}` at {where}: error ×{num(c.amplification)}"
                        f" ({c.digits:.1f} digits)")
     out += ["", "candidate fixes"]
@@ -321,20 +328,26 @@ def cfg_u(total: float) -> str:
 def as_dict(e: Explanation, note: str = "") -> dict[str, Any]:
     """The explanation as JSON-ready data."""
     p = e.curve
+    finding = e.finding.to_dict() if e.finding else None
+    if e.finding is not None and finding is not None:
+        cell, finding["line"] = e.cell_line(e.finding.span.line)
+        finding["end_line"] = e.cell_line(e.finding.span.end_line)[1]
+        if cell is not None:
+            finding["cell"] = cell
 
     def floats(xs: np.ndarray) -> list[float | None]:
         return [None if not math.isfinite(float(x)) else round(float(x), 4) for x in xs]
 
     return {
-        "path": e.path, "line": e.site.span.line, "column": e.site.span.col + 1, "scope": e.site.scope,
-        "expression": e.site.root.text, "finding": e.finding.to_dict() if e.finding else None,
+        "path": e.path, "cell": e.cell_line(e.site.span.line)[0], "line": e.cell_line(e.site.span.line)[1], "column": e.site.span.col + 1, "scope": e.site.scope,
+        "expression": e.site.root.text, "finding": finding,
         "inputs": {k: {"low": e.analysis.bounds[k][0], "high": e.analysis.bounds[k][1],
                        "source": e.analysis.sources.get(k)} for k in e.analysis.names},
         "kappa_formula": e.kappa_formula, "kappa_formula_note": e.formula_note or None,
         "swept": e.swept, "held": e.held,
         "points": {"inputs": {k: [float(x) for x in v] for k, v in p.cols.items()}, "kappa": floats(p.kappa),
                    "predicted": floats(p.predicted), "measured": floats(p.measured)},
-        "contributions": [{"expression": c.text, "operation": c.label, "line": c.span.line if c.span else None,
+        "contributions": [{"expression": c.text, "operation": c.label, "line": e.cell_line(c.span.line)[1] if c.span else None,
                            "amplification": c.amplification, "digits": round(c.digits, 2)}
                           for c in e.contributions],
         "fixes": [{"title": c.fix.title, "replacement": c.fix.replacement, "origin": c.origin,
