@@ -34,7 +34,8 @@ def register(sub: argparse._SubParsersAction) -> None:
         "Exit status: 0 when done (or nothing to do), 1 when --diff shows changes or a file was not written, "
         "2 on usage errors."))
     p.add_argument("paths", nargs="*", default=["."], help="files or directories (default: .)")
-    p.add_argument("--select", nargs="+", metavar="CODE", help=f"fix only these codes ({', '.join(FIXABLE_CODES)})")
+    p.add_argument("--select", action="append", metavar="CODE[,CODE…]",
+                   help=f"fix only these codes ({', '.join(FIXABLE_CODES)}); may be repeated")
     p.add_argument("--diff", action="store_true", help="print a unified diff instead of writing the files")
     add_config_options(p)
     p.set_defaults(run=run)
