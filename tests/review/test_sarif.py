@@ -12,7 +12,6 @@ import pytest
 
 from condhint.config import Config
 from condhint.engine import analyse_module
-from condhint.expr import Span
 from condhint.findings import Fix
 from condhint.outputs.sarif import document
 from tests.review.support import MARRAM, cli, cli_json

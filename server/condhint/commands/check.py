@@ -23,7 +23,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--format", choices=sorted(WRITERS), default="text")
     p.add_argument("--output", metavar="FILE", help="write the report to FILE instead of stdout")
     p.add_argument("--fail-on", choices=("info", "warning", "error"), help="exit 1 from this severity on")
-    p.add_argument("--statistics", action="store_true", help="add counts by code")
+    p.add_argument("--statistics", action="store_true",
+                   help="add a table of findings by code: severities, suppressed, files, worst loss")
     add_config_options(p)
     add_review_options(p)
     p.set_defaults(run=run)

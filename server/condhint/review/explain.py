@@ -15,7 +15,7 @@ import numpy as np
 
 from condhint.config import Config
 from condhint.engine import ModuleAnalysis, analyse_module
-from condhint.expr import Span, topological
+from condhint.expr import Span
 from condhint.findings import Finding, Fix
 from condhint.messages import num
 from condhint.numeric.analysis import Analysis, analyse
