@@ -54,8 +54,7 @@ class Verified:
 
     def fix(self) -> Fix:
         ev = self.evidence
-        title = f"{self.title} (loses {ev.after:.1f} instead of {ev.before:.1f} digits)"
-        return Fix(title=title, replacement=self.text, span=self.span, imports=list(self.imports),
+        return Fix(title=self.title, replacement=self.text, span=self.span, imports=list(self.imports),
                    measured_digits_lost_after=ev.after, measured_digits_lost_before=ev.before, rule=self.rule,
                    proven=ev.proven)
 
