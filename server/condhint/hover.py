@@ -56,6 +56,7 @@ class HoverFacts:
     inputs: list[InputFacts] = field(default_factory=list)
     result_uncertainty: float | None = None
     finding: Finding | None = None
+    finding_around: bool = False  # the finding is on an enclosing operation, not on this expression
     formula: str | None = None
     formula_state: str = "off"  # "ready", "pending", "unavailable", "off"
 
@@ -123,7 +124,10 @@ def markdown(facts: HoverFacts) -> str:
     out = [f"**condhint** {_code(facts.text)}", ""]
     f = facts.finding
     if f is not None:
-        out += [f"**{f.code} {f.name}** ({f.category}, {f.severity}): {_digits(f.digits_lost)} digits lost", ""]
+        head = f"**{f.code} {f.name}** ({f.category}, {f.severity}): {_digits(f.digits_lost)} digits lost"
+        if facts.finding_around:
+            head = f"inside {_code(' '.join(f.expression.split()))}, flagged {head}"
+        out += [head, ""]
     where = f" at `{_at(facts.kappa_at)}`" if facts.kappa_at else ""
     kappa = "n/a (no finite samples)" if math.isnan(facts.kappa) else f"`κ ≈ {num(facts.kappa)}`"
     median = "" if math.isnan(facts.kappa_median) else f" (median `{num(facts.kappa_median)}`)"

@@ -175,10 +175,12 @@ async def hover(ls: "CondhintServer", params: types.HoverParams) -> types.Hover 
     if analysis is None:
         loop = asyncio.get_running_loop()
         analysis = await loop.run_in_executor(ls.background.hover_pool, analyse_node, site, node, cfg)
-    finding = next((f for f in piece.findings if getattr(f, "_site", None) is site
-                    and getattr(f, "_raw", f).span == node.span), None)
-    facts = describe(site, node, analysis, cfg, finding,
+    own = [f for f in piece.findings if getattr(f, "_site", None) is site]
+    finding = next((f for f in own if getattr(f, "_raw", f).span == node.span), None)
+    around = next((f for f in own if getattr(f, "_raw", f).span.contains(node.span)), None) if finding is None else None
+    facts = describe(site, node, analysis, cfg, finding or around,
                      line_of=lambda line: line + piece.shift if line > piece.head else None)
+    facts.finding_around = around is not None
     if ls.settings.config.kappa_formula:
         facts.formula_state, facts.formula = await _formula(ls, site, node, cfg)
     span = piece.to_document(node.span) if node.span is not None else None
