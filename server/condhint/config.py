@@ -47,7 +47,7 @@ class Config:
     samples: int = 256  # binary64 samples per site
     reference_samples: int = 40  # of which this many are re-evaluated in mpmath when a site looks suspicious
     float_format: str = "float64"
-    include: tuple[str, ...] = ("*.py",)
+    include: tuple[str, ...] = ("*.py", "*.ipynb")
     exclude: tuple[str, ...] = ()
     min_severity: str = "info"  # findings below this are not reported at all
     fail_on: str = "warning"  # the exit status is 1 when a finding reaches this severity

@@ -80,6 +80,7 @@ class Finding:
     scope: str = ""
     result_uncertainty: float | None = None  # relative, from declared input uncertainties
     suppressed: bool = False
+    cell: int | None = None  # notebooks: the 1-based cell the span's lines count within
     site_key: str = field(default="", repr=False)  # structural key of the analysed expression
 
     @property
@@ -94,6 +95,12 @@ class Finding:
         """Survives unrelated edits: built from the file, scope, code and the expression's text, not lines."""
         text = " ".join(self.expression.split())
         return hashlib.sha256(f"{self.path}\0{self.scope}\0{self.code}\0{text}".encode()).hexdigest()[:20]
+
+    @property
+    def location(self) -> str:
+        """`path:line:col` as a reader looks it up (`path:cell N:line:col` in a notebook)."""
+        cell = f"cell {self.cell}:" if self.cell is not None else ""
+        return f"{self.path}:{cell}{self.span.line}:{self.span.col + 1}"
 
     def to_dict(self) -> dict[str, Any]:
         def r(v: float | None, nd: int = 2) -> float | None:
@@ -116,6 +123,7 @@ class Finding:
             "fixes": [f.to_dict() for f in self.fixes],
             "related": [{"line": ln, "message": m} for ln, m in self.related],
             "scope": self.scope, "fingerprint": self.fingerprint(),
+            **({"cell": self.cell} if self.cell is not None else {}),
         }
 
 

@@ -15,9 +15,10 @@ def write(reports: list[FileReport], options: dict) -> str:
             if f.rank < minimum:
                 continue
             shown[f.severity] += 1
-            lines.append(f"{f.path}:{f.span.line}:{f.span.col + 1}: {f.severity}: {f.message} [{f.code}]")
+            lines.append(f"{f.location}: {f.severity}: {f.message} [{f.code}]")
+            cell = f"cell {f.cell}:" if f.cell is not None else ""
             for line, note in f.related:
-                lines.append(f"{f.path}:{line}:1: note: {note}")
+                lines.append(f"{f.path}:{cell}{line}:1: note: {note}")
             for fix in f.fixes[:1]:
                 lines.append(f"    fix: {fix.title}")
     suppressed = sum(len(r.suppressed) for r in reports)
@@ -25,9 +26,5 @@ def write(reports: list[FileReport], options: dict) -> str:
     summary = f"{len(reports)} file{'s' if len(reports) != 1 else ''} checked: " + (", ".join(parts) or "no findings")
     if suppressed:
         summary += f" ({suppressed} suppressed)"
-    if options.get("statistics"):
-        by_code = Counter(f.code for r in reports for f in r.findings if f.rank >= minimum)
-        for code, count in sorted(by_code.items()):
-            lines.append(f"{count:6d}  {code}")
     lines.append(summary)
     return "\n".join(lines) + "\n"

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import json
 import time
-from dataclasses import dataclass, fields
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
 
@@ -22,18 +22,6 @@ from condhint.messages import not_analysed
 
 # Cell magics whose body is ordinary Python: only their first line is dropped.
 PYTHON_CELL_MAGICS = {"time", "timeit", "capture", "prun"}
-
-
-@dataclass
-class NotebookFinding(Finding):
-    """A finding in a notebook: `span` lines count within `cell`."""
-
-    cell: int = 0
-
-    def to_dict(self) -> dict[str, Any]:
-        d = super().to_dict()
-        d["cell"] = self.cell
-        return d
 
 
 @dataclass
@@ -99,7 +87,7 @@ def cell_texts(path: Path) -> dict[int, str]:
     return {c.number: c.text for c in read_cells(path)}
 
 
-def _relocate(f: Finding, where: list[tuple[int, int, int]], path: str) -> NotebookFinding:
+def _relocate(f: Finding, where: list[tuple[int, int, int]], path: str) -> Finding:
     """Map a finding of the joined text to its cell: `where` lists (first joined line, lines, cell)."""
     def locate(line: int) -> tuple[int, int]:
         for first, count, number in where:
@@ -114,9 +102,7 @@ def _relocate(f: Finding, where: list[tuple[int, int, int]], path: str) -> Noteb
     for ln, note in f.related:
         c, rl = locate(ln)
         related.append((rl, note if c == cell else f"{note} (cell {c})"))
-    values = {fl.name: getattr(f, fl.name) for fl in fields(Finding)}
-    values.update(path=path, span=span, related=related)
-    out = NotebookFinding(**values, cell=cell)
+    out = replace(f, path=path, span=span, related=related, cell=cell)
     if hasattr(f, "_site"):
         out._site = f._site  # type: ignore[attr-defined]
     return out
@@ -134,8 +120,7 @@ def join_cells(cells: list[CodeCell], shown: str) -> tuple[str, list[tuple[int, 
         _, err = parse(cell.code)
         if err is not None:
             err.path = shown
-            values = {fl.name: getattr(err, fl.name) for fl in fields(Finding)}
-            bad.append(NotebookFinding(**values, cell=cell.number))
+            bad.append(replace(err, cell=cell.number))
             continue
         code = cell.code if cell.code.endswith("\n") else cell.code + "\n"
         count = code.count("\n")
