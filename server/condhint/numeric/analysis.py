@@ -139,20 +139,16 @@ def _ratio(v: Any, a: Any, f: Any, backend: Any) -> np.ndarray:
 def _metrics(nodes: list[Node], vals: dict[int, Any], adj: dict[int, Any], names: list[str],
              rounding: list[int], backend: Any) -> tuple[np.ndarray, dict[str, np.ndarray], np.ndarray, dict[int, np.ndarray]]:
     """κ, κᵢ, rounding amplification A and its terms, per sample."""
-    root = nodes[-1]
-    f = vals[id(root)]
+    f = vals[id(nodes[-1])]
+
+    def relative(node: Node) -> np.ndarray:  # |v ∂f/∂v / f|
+        a = adj.get(id(node))
+        return np.zeros(len(f)) if a is None else _ratio(vals[id(node)], a, f, backend)
+
     by_name = {n.name: n for n in nodes if n.kind == INPUT}
-    kappa_i = {}
-    for name in names:
-        node = by_name[name]
-        a = adj.get(id(node))
-        kappa_i[name] = np.zeros(len(f)) if a is None else _ratio(vals[id(node)], a, f, backend)
+    kappa_i = {name: relative(by_name[name]) for name in names}
+    terms = {k: relative(nodes[k]) for k in rounding}
     kappa = sum(kappa_i.values()) if kappa_i else np.zeros(len(f))
-    terms = {}
-    for k in rounding:
-        node = nodes[k]
-        a = adj.get(id(node))
-        terms[k] = np.zeros(len(f)) if a is None else _ratio(vals[id(node)], a, f, backend)
     amp = sum(terms.values()) if terms else np.zeros(len(f))
     return np.asarray(kappa, dtype=float), kappa_i, np.asarray(amp, dtype=float), terms
 
