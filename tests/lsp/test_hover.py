@@ -66,7 +66,8 @@ async def test_hover_on_any_subexpression(lsp, tmp_path):
     # `rate * dt`: κ of a product is 2, one for each factor (derivable; Higham 2002).
     h = await hover_at(client, uri, GROWTH, "rate * dt", offset=5)
     md = h.contents.value
-    assert "`rate * dt`" in md and "CH101" not in md
+    assert "`rate * dt`" in md
+    assert "inside `exp(rate * dt) - 1`, flagged **CH101 avoidable-loss**" in md  # the enclosing finding
     assert kappa_of(md) == pytest.approx(2.0, rel=1e-6)
     assert "κ_rate ≈ 1`" in md and "κ_dt ≈ 1`" in md
     # `1 + fraction`: κ = f/(1 + f) ≈ f, tiny on [1e-12, 1e-3] (derivable): well-conditioned itself.
