@@ -102,6 +102,8 @@ class Analyser:
             if kind not in self._failed:
                 self._failed.add(kind)
                 ls.tell(f"condhint could not analyse {Path(state.path).name}: {kind}: {exc}", error=True)
+            if state.generation == generation and state.ready is not None and not state.ready.done():
+                state.ready.set_result(None)  # waiters get no result now, rather than after their timeout
             return
         if state.generation != generation or state.closed:
             return  # never publish results computed for an older version

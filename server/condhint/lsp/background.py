@@ -16,6 +16,7 @@ from types import ModuleType
 from typing import Any, Callable
 
 from condhint.config import Config
+from condhint.engine import AnalysisCache
 from condhint.expr import Node
 from condhint.findings import Finding, Fix
 from condhint.site import Site
@@ -118,6 +119,7 @@ class Background:
         self.fixes = Jobs("condhint-fixes")
         # Subexpression analyses for hover: not queued behind whole-document analyses.
         self.hover_pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="condhint-hover")
+        self.hover_cache = AnalysisCache(capacity=2000)  # used by the hover thread only
 
     # ---- κ formulas -----------------------------------------------------------------------------------------
     def warm_up(self) -> None:

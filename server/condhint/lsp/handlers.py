@@ -174,7 +174,8 @@ async def hover(ls: "CondhintServer", params: types.HoverParams) -> types.Hover 
     analysis = piece.analysis.analyses.get(id(site)) if node is site.root else None
     if analysis is None:
         loop = asyncio.get_running_loop()
-        analysis = await loop.run_in_executor(ls.background.hover_pool, analyse_node, site, node, cfg)
+        analysis = await loop.run_in_executor(ls.background.hover_pool, analyse_node, site, node, cfg,
+                                              ls.background.hover_cache)
     own = [f for f in piece.findings if getattr(f, "_site", None) is site]
     finding = next((f for f in own if getattr(f, "_raw", f).span == node.span), None)
     around = next((f for f in own if getattr(f, "_raw", f).span.contains(node.span)), None) if finding is None else None
