@@ -102,7 +102,7 @@ def describe(site: Site, node: Node, analysis: Analysis, cfg: Config, finding: F
 
 def source_words(source: str) -> str:
     """'comment+guard' -> 'a condhint comment, narrowed by a guard (…)'."""
-    parts = [_SOURCES.get(p, p) for p in source.split("+")]
+    parts = [_SOURCES.get(p, p) for p in dict.fromkeys(source.split("+"))]  # "assert+assert": one assert
     return parts[0] + "".join(f", narrowed by {p}" for p in parts[1:])
 
 

@@ -22,7 +22,7 @@ from typing import Callable
 
 from condhint.config import Config
 from condhint.engine import DEFAULT_CACHE, AnalysisCache, ModuleAnalysis, analyse_module, parse
-from condhint.expr import Node, Span, topological
+from condhint.expr import INPUT, Node, Span, topological
 from condhint.findings import Finding
 from condhint.site import Site
 
@@ -93,8 +93,8 @@ class DocumentAnalysis:
         return module
 
     def node_at(self, line: int, col: int) -> tuple[Piece, Site, Node] | None:
-        """The innermost operation of any analysed expression whose source range contains the position
-        (document line, 1-based; column in code points)."""
+        """The innermost operation with inputs, of any analysed expression, whose source range contains the
+        position (document line, 1-based; column in code points)."""
         piece = self.piece_at(line)
         if piece is None:
             return None
@@ -103,13 +103,18 @@ class DocumentAnalysis:
         best_size = None
         for site in piece.analysis.sites:
             for node in topological(site.root):
-                if node.span is None or node.is_leaf or not _contains(node.span, at):
+                if node.span is None or node.is_leaf or not _contains(node.span, at) or not _has_inputs(node):
                     continue
                 size = (node.span.end_line - node.span.line, node.span.end_col - node.span.col
                         if node.span.line == node.span.end_line else 10**6)
                 if best_size is None or size < best_size:
                     best, best_size = (piece, site, node), size
         return best
+
+
+def _has_inputs(node: Node) -> bool:
+    """Constant subexpressions (`RHO_SEA * G`) have no condition to show: the enclosing one is meant."""
+    return any(n.kind == INPUT for n in topological(node))
 
 
 def _contains(span: Span, at: Span) -> bool:

@@ -1,6 +1,8 @@
 """Diagnostics end to end: a real server over stdio, real client capability profiles."""
 from __future__ import annotations
 
+from pathlib import Path
+
 import pytest
 from lsprotocol import types
 
@@ -9,6 +11,7 @@ from lsp_support import (NEOVIM, NEOVIM_07, VSCODE, encoding_of, expect_diagnost
 from samples import GROWTH, digits_lost_exp_minus_one
 
 pytestmark = pytest.mark.asyncio
+DEMO = Path(__file__).resolve().parents[2] / "docs" / "examples" / "marram"
 
 
 def by_code(diags: list[types.Diagnostic], code: str) -> list[types.Diagnostic]:
@@ -77,3 +80,20 @@ async def test_push_clients_get_no_pull_capability_and_close_clears(lsp, tmp_pat
     cleared = expect_diagnostics(client, uri)
     client.text_document_did_close(types.DidCloseTextDocumentParams(text_document=types.TextDocumentIdentifier(uri=uri)))
     assert list((await within(cleared)).diagnostics) == []
+
+
+async def test_related_information_for_a_formula_over_several_lines(lsp, tmp_path):
+    # The demo's quadratic formula: `disc` (line 14) is inlined into line 15's `-b + math.sqrt(disc)`.
+    text = (DEMO / "chemistry.py").read_text()
+    client = await lsp(VSCODE, init_options={"debounceMs": 10})  # declares relatedInformation
+    path = tmp_path / "chemistry.py"
+    uri = path.resolve().as_uri()
+    done = expect_diagnostics(client, uri, version=1)
+    open_document(client, path, text)
+    diags = (await within(done)).diagnostics
+    flagged = [d for d in diags if d.range == range_of(text, "-b + math.sqrt(disc)", "utf-16")]
+    assert len(flagged) == 1 and flagged[0].code == "CH101"
+    related = {(r.location.range.start.line, r.message) for r in flagged[0].related_information}
+    disc_line = range_of(text, "disc = b * b", "utf-16").start.line
+    assert (disc_line, "`disc` is computed here") in related
+    assert all(r.location.uri == uri for r in flagged[0].related_information)

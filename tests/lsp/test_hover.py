@@ -4,6 +4,7 @@ from __future__ import annotations
 import asyncio
 import math
 import re
+from pathlib import Path
 
 import pytest
 import sympy
@@ -13,6 +14,7 @@ from lsp_support import NEOVIM, NEOVIM_07, VSCODE, encoding_of, expect_diagnosti
 from samples import GROWTH
 
 pytestmark = pytest.mark.asyncio
+DEMO = Path(__file__).resolve().parents[2] / "docs" / "examples" / "marram"
 
 
 async def hover_at(client, uri: str, text: str, needle: str, offset: int = 0) -> types.Hover | None:
@@ -105,3 +107,21 @@ async def test_hover_shows_declared_uncertainty_and_the_kappa_formula(lsp, tmp_p
     for x in (0.5, 0.9999, 1.0001, 3.0):
         assert float(expr.subs(ratio, x)) == pytest.approx(abs(x / (x - 1)), rel=1e-12)
     assert math.isfinite(kappa_of(md))
+
+
+async def test_hover_names_where_each_range_came_from(lsp, tmp_path):
+    text = (DEMO / "mooring.py").read_text()
+    client = await lsp(VSCODE, init_options={"debounceMs": 10})
+    uri = await opened(client, tmp_path, text, "mooring.py")
+    md = (await hover_at(client, uri, text, "tether * (1 - cos(theta))", offset=7)).contents.value
+    assert "`tether ∈ [1, 100]` from a condhint comment, line 12" in md
+    assert "from an assert, line 13" in md  # `assert 0 < theta < 0.01`
+    md = (await hover_at(client, uri, text, "theta - sin(theta)", offset=6)).contents.value
+    assert "from a guard (`if …: raise/return`), line 20" in md
+    # On the constant part `RHO_SEA * G`: the hover is about the enclosing expression, which has an input.
+    md = (await hover_at(client, uri, text, "RHO_SEA * G * volume", offset=8)).contents.value
+    assert "**condhint** `RHO_SEA * G * volume`" in md and "`volume ∈ [0.001, 10]`" in md
+    undeclared = "import math\n\n\ndef step(n):\n    return math.sqrt(n + 1) - math.sqrt(n)\n"
+    uri = await opened(client, tmp_path, undeclared, "step.py")
+    md = (await hover_at(client, uri, undeclared, " - math", offset=1)).contents.value
+    assert "`n ∈ [1e-06, 1e+06]` from the default range" in md
