@@ -8,6 +8,7 @@ Public entry points:
 See docs/rewrites.md for how a rule is defined, verified and added.
 """
 from condhint.rewrites.apply import apply_fixes
-from condhint.rewrites.propose import FIXABLE, attach_fixes, fixes_for
+from condhint.rewrites.propose import attach_fixes, fixes_for
+from condhint.rewrites.recheck import FIXABLE
 
 __all__ = ["FIXABLE", "apply_fixes", "attach_fixes", "fixes_for"]

@@ -12,17 +12,16 @@ from __future__ import annotations
 import ast
 import keyword
 import time
-from collections import Counter
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from typing import TYPE_CHECKING, Iterator
 
 from condhint.config import Config
 from condhint.expr import INPUT, SELECT, Node, Span, topological
 from condhint.findings import Finding, Fix
-from condhint.numeric.evaluate import Deadline
-from condhint.rewrites import codegen, dag, search
-from condhint.rewrites.apply import apply_fixes
+from condhint.numeric.evaluate import BudgetExceeded, Deadline
+from condhint.rewrites import codegen, dag, search, sym
 from condhint.rewrites.context import Context
+from condhint.rewrites.recheck import FIXABLE, rechecked
 from condhint.rewrites.rules import RULES
 from condhint.rewrites.verify import NOISE, Bench, Evidence
 from condhint.site import Site
@@ -30,10 +29,8 @@ from condhint.site import Site
 if TYPE_CHECKING:
     from condhint.engine import AnalysisCache, ModuleAnalysis
 
-FIXABLE = ("formula", "overflow", "domain")
 ANCESTORS = 4
 SECONDS_PER_FINDING = 2.0
-RECHECKED = 3  # how many of the best candidates are re-analysed at most
 
 
 @dataclass
@@ -176,11 +173,20 @@ class Proposal:
     approximate: bool = False
 
 
+# What a rule, the search or the measurement may raise on an expression it cannot handle: that candidate
+# is skipped, the others are still tried.
+SKIPPED = (ArithmeticError, ValueError, TypeError, RecursionError, sym.Untranslatable, BudgetExceeded)
+
+
 def _named(tgts: list[Node], ctx_for) -> Iterator[Proposal]:  # type: ignore[no-untyped-def]
     for t in tgts:
         ctx = ctx_for(t)
         for order, rule in enumerate(RULES):
-            for cand in rule.candidates(t, ctx):
+            try:
+                cands = rule.candidates(t, ctx)
+            except SKIPPED:
+                continue
+            for cand in cands:
                 extra = 2 if any(n.kind == SELECT for n in topological(cand)) else 0
                 yield Proposal(rule.id, rule.title, t, cand, rule.cost + extra, order)
 
@@ -188,11 +194,18 @@ def _named(tgts: list[Node], ctx_for) -> Iterator[Proposal]:  # type: ignore[no-
 def _searched(tgts: list[Node], ctx_for, deadline: Deadline) -> Iterator[Proposal]:  # type: ignore[no-untyped-def]
     base = len(RULES)
     for t in tgts:
-        ctx = ctx_for(t)
-        for k, found in enumerate(search.transformed(t, ctx, deadline)):
+        try:
+            found_all = list(search.transformed(t, ctx_for(t), deadline))
+        except SKIPPED:
+            continue
+        for k, found in enumerate(found_all):
             yield Proposal(found.rule, found.title, t, found.replacement, 3, base + k)
     for t in tgts:
-        for found in search.series(t, ctx_for(t), deadline):
+        try:
+            found_all = list(search.series(t, ctx_for(t), deadline))
+        except SKIPPED:
+            continue
+        for found in found_all:
             yield Proposal(found.rule, found.title, t, found.replacement, 4, base + 10, True)
 
 
@@ -217,7 +230,10 @@ def fixes_for(finding: Finding, ma: "ModuleAnalysis", cfg: Config, cache: "Analy
     tgts = targets(site, finding, culprit, replaceable)
     if not tgts:
         return []
-    bench = Bench(site, cfg, finding.worst_at)
+    try:
+        bench = Bench(site, cfg, finding.worst_at)
+    except SKIPPED:
+        return []
     writers: dict[int, Writer] = {}
     contexts: dict[int, Context] = {}
 
@@ -245,45 +261,18 @@ def fixes_for(finding: Finding, ma: "ModuleAnalysis", cfg: Config, cache: "Analy
                 continue
             seen.add((id(p.target), text))
             cand_root = dag.substitute(site.root, p.target, p.replacement)
-            ev = bench.judge(p.target, p.replacement, cand_root, p.approximate, deadline)
+            try:
+                ev = bench.judge(p.target, p.replacement, cand_root, p.approximate, deadline)
+            except SKIPPED:
+                continue
             if ev.ok:
                 verified.append(Verified(p.rule, p.title, p.target, p.replacement, text, imports, span, ev,
                                          p.cost, p.order))
         verified.sort(key=Verified.rank)
-        fixes = _rechecked(verified, finding, ma, cfg, cache)
+        fixes = rechecked([v.fix() for v in verified], finding, ma, cfg, cache)
         if fixes:
             return fixes
     return []
-
-
-def _fixable_findings(findings: list[Finding]) -> Counter[tuple[str, str, str]]:
-    return Counter((f.code, f.scope, " ".join(f.expression.split())) for f in findings if f.category in FIXABLE)
-
-
-def _rechecked(verified: list[Verified], finding: Finding, ma: "ModuleAnalysis", cfg: Config,
-               cache: "AnalysisCache | None") -> list[Fix]:
-    """Fixes whose patched file re-analyses without this finding and without any new one."""
-    from condhint.engine import DEFAULT_CACHE, analyse_module
-
-    assert ma.source is not None
-    before = _fixable_findings(ma.report.findings)
-    (own,) = _fixable_findings([finding]) or [None]
-    quiet = replace(cfg, kappa_formula=False)
-    out: list[Fix] = []
-    for v in verified[:RECHECKED]:
-        fix = v.fix()
-        try:
-            patched = apply_fixes(ma.source.text, [fix])
-        except ValueError:
-            continue
-        again = analyse_module(patched, ma.report.path, quiet, cache if cache is not None else DEFAULT_CACHE)
-        if again.report.status != "ok":
-            continue
-        after = _fixable_findings(again.report.findings)
-        if after - before or after[own] >= before[own]:
-            continue
-        out.append(fix)
-    return out
 
 
 def attach_fixes(ma: "ModuleAnalysis", cfg: Config, cache: "AnalysisCache | None" = None) -> None:

@@ -19,7 +19,7 @@ import numpy as np
 import sympy as sp
 from sympy.codegen import rewriting as sr
 
-from condhint.budget import OverBudget, run_with_budget
+from condhint.budget import OverBudget
 from condhint.expr import CONST, INPUT, Node, topological
 from condhint.numeric.analysis import _reference
 from condhint.numeric.backends import F64_BACKEND
@@ -62,7 +62,7 @@ def transformed(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Foun
         if _late(deadline):
             return
         try:
-            out = run_with_budget(_transform, (name, tr.expr), min(ctx.sympy_seconds, _left(deadline)))
+            out = sym.with_budget(_transform, (name, tr.expr), min(ctx.sympy_seconds, _left(deadline)))
         except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, AttributeError):
             continue
         if out in seen:
@@ -158,7 +158,7 @@ def series(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Found]:
     except BudgetExceeded:
         return
     try:
-        every = run_with_budget(_series_terms, (tr.expr, var, MAX_TERMS), min(1.0, _left(deadline)))
+        every = sym.with_budget(_series_terms, (tr.expr, var, MAX_TERMS), min(1.0, _left(deadline)))
     except (OverBudget, RuntimeError, ValueError, TypeError, sp.PoleError, NotImplementedError):
         return
     if not every:
