@@ -17,7 +17,7 @@ from condhint.expr import Node, topological
 from condhint.findings import Finding, Fix
 from condhint.rewrites import FIXABLE, fixes_for
 from condhint.rewrites.context import Context
-from condhint.rewrites.propose import Writer
+from condhint.rewrites.writer import Writer
 from condhint.rewrites.verify import Bench
 from condhint.site import Site
 

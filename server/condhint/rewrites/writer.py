@@ -1,0 +1,108 @@
+"""Writing one candidate as a replacement for one target: the text, its imports and the span it replaces.
+
+The names usable there are those bound on earlier lines that still hold the same value (and module
+constants); the parentheses are those the target's place in the syntax tree needs.
+"""
+from __future__ import annotations
+
+import ast
+import keyword
+from typing import TYPE_CHECKING
+
+from condhint.expr import INPUT, Node, Span, topological
+from condhint.rewrites import codegen
+from condhint.site import Site
+
+if TYPE_CHECKING:
+    from condhint.engine import ModuleAnalysis
+
+
+class Writer:
+    """Code for candidates replacing one target, in the file's style and with the names visible there."""
+
+    def __init__(self, ma: "ModuleAnalysis", site: Site, target: Node) -> None:
+        assert ma.source is not None and ma.walker is not None and target.span is not None
+        self.source = ma.source
+        self.tree = ma.walker.tree
+        self.target = target
+        self.style = codegen.Style.of(ma.walker.tree)
+        self.site_nodes = topological(site.root)
+        self.names = visible_names(ma, site, target)
+
+    def reuse(self, node: Node) -> str | None:
+        if node.kind == INPUT or node.span is None or not node.text or node is self.target:
+            return None
+        if not self.target.span.contains(node.span) or self.source.segment(node.span) != node.text:  # type: ignore[union-attr]
+            return None
+        return node.text if codegen.is_expression(node.text) else None
+
+    def write(self, replacement: Node) -> tuple[str, list[str], Span]:
+        """The replacement text, the imports it needs, and the span it replaces (the target's, widened over
+        grouping parentheses that a call or a name no longer needs)."""
+        spelling = codegen.Spelling.for_site(self.style, self.site_nodes)
+        text, prec = codegen.Emitter(spelling, self.reuse, self.names).text(replacement)
+        span = self.target.span
+        assert span is not None
+        grouping = self._grouping(span)
+        if grouping is not None and prec == codegen.ATOM_P:
+            span = grouping
+        elif grouping is None and prec < self._required():
+            text = f"({text})"
+        codegen.check_side_effects(self.target.text, text, replacement)
+        ast.parse(text, mode="eval")
+        return text, spelling.imports, span
+
+    def _grouping(self, span: Span) -> Span | None:
+        """The span including the parentheses around the target when they only group it."""
+        if span.line != span.end_line:
+            return None
+        line = self.source.lines[span.line - 1]
+        left, right = line[: span.col].rstrip(), line[span.end_col:]
+        if not left.endswith("(") or not right.lstrip().startswith(")"):
+            return None
+        before = left[:-1].rstrip()
+        word = before[len(before.rstrip("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ0123456789_")):]
+        if (word and not keyword.iskeyword(word)) or before.endswith((")", "]", "}", "'", '"')):
+            return None  # the parentheses of a call, or after a subscript or a string
+        close = span.end_col + (len(right) - len(right.lstrip())) + 1
+        return Span(span.line, len(left) - 1, span.end_line, close)
+
+    def _required(self) -> int:
+        """The precedence the target's place in the code needs (its own, when the place is not found)."""
+        found = codegen.place(self.tree, self.source, self.target.span)  # type: ignore[arg-type]
+        return found if found is not None else codegen.precedence(self.target.text)
+
+
+def visible_names(ma: "ModuleAnalysis", site: Site, target: Node) -> dict[int, str]:
+    """Nodes bound to a name on an earlier line that still holds it where `target` is, and module constants."""
+    assert target.span is not None and ma.walker is not None
+    line = target.span.line
+    stores = _stores(ma.walker.tree)
+    out: dict[int, str] = {}
+    for key, b in site.bindings_by_node.items():
+        if b.line < line and not any(b.line < ln < line for ln in stores.get(b.name, ())) and not (
+                b.span.line <= line <= b.span.end_line):
+            out[key] = b.name
+    for name, node in ma.walker.module_constants.items():
+        if node.span is not None and node.span.line != line:
+            out.setdefault(id(node), name)
+    out.pop(id(target), None)
+    return out
+
+
+_STORES: dict[int, tuple[ast.Module, dict[str, list[int]]]] = {}
+
+
+def _stores(tree: ast.Module) -> dict[str, list[int]]:
+    """Lines where each name is assigned (cached per syntax tree)."""
+    hit = _STORES.get(id(tree))
+    if hit is not None and hit[0] is tree:
+        return hit[1]
+    out: dict[str, list[int]] = {}
+    for n in ast.walk(tree):
+        if isinstance(n, ast.Name) and isinstance(n.ctx, ast.Store):
+            out.setdefault(n.id, []).append(n.lineno)
+    if len(_STORES) > 8:
+        _STORES.clear()
+    _STORES[id(tree)] = (tree, out)
+    return out
