@@ -17,7 +17,7 @@ import threading
 import time
 import warnings
 from collections import OrderedDict
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from typing import Callable
 
 from condhint.config import Config

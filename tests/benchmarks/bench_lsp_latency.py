@@ -16,7 +16,6 @@ import ast
 import asyncio
 import io
 import re
-import statistics
 import sys
 import tempfile
 import time

@@ -8,7 +8,7 @@ from lsprotocol import types
 
 from lsp_support import (EMACS, NEOVIM_07, VSCODE, apply_edits, edits_for, encoding_of, expect_diagnostics, open_document,
                          range_of, replace_all, within)
-from samples import GROWTH, UNDECLARED
+from lsp_samples import GROWTH, UNDECLARED
 
 pytestmark = pytest.mark.asyncio
 

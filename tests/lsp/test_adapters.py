@@ -74,3 +74,12 @@ def test_diagnostic_carries_kappa_digits_category_code_and_related_lines():
     assert to_lsp_diagnostic(f, pos, "file:///m.py", related=False).related_information is None
     assert result_id([d]) == result_id([to_lsp_diagnostic(f, pos, "file:///m.py", related=True)])
     assert inlay_label(f) == "−5.0 digits"
+
+
+@pytest.mark.parametrize("argv", [["serve", "--tcp", "a", "b", "c"], ["serve", "--tcp", "127.0.0.1", "port"],
+                                  ["serve", "--tcp", "70000"]])
+def test_serve_rejects_bad_tcp_addresses(argv, capsys):
+    from condhint.cli import main
+
+    assert main(argv) == 2
+    assert "--tcp" in capsys.readouterr().err

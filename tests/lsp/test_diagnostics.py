@@ -8,7 +8,7 @@ from lsprotocol import types
 
 from lsp_support import (NEOVIM, NEOVIM_07, VSCODE, encoding_of, expect_diagnostics, open_document, range_of,
                          replace_all, within)
-from samples import GROWTH, digits_lost_exp_minus_one
+from lsp_samples import GROWTH, digits_lost_exp_minus_one
 
 pytestmark = pytest.mark.asyncio
 DEMO = Path(__file__).resolve().parents[2] / "docs" / "examples" / "marram"

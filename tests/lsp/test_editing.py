@@ -11,7 +11,7 @@ from pytest_lsp import client_capabilities
 
 from lsp_support import (EMACS, NEOVIM, NEOVIM_07, VSCODE, encoding_of, expect_diagnostics, open_document, position,
                          range_of, replace_all, units, within)
-from samples import GROWTH, UNICODE
+from lsp_samples import GROWTH, UNICODE
 
 pytestmark = pytest.mark.asyncio
 
@@ -136,7 +136,7 @@ def big_module(functions: int) -> str:
     """Distinct formulas (distinct constants), so nothing is shared between them."""
     out = ["import math", ""]
     for i in range(functions):
-        out += [f"def f{i}(x):", f"    # condhint: 1e-9 <= x <= 1e-3",
+        out += [f"def f{i}(x):", "    # condhint: 1e-9 <= x <= 1e-3",
                 f"    return math.exp(x * {1 + i / 1000:.4f}) - 1.0 + x * {i + 0.5}", ""]
     return "\n".join(out)
 

@@ -11,7 +11,7 @@ import sympy
 from lsprotocol import types
 
 from lsp_support import NEOVIM, NEOVIM_07, VSCODE, encoding_of, expect_diagnostics, open_document, position, within
-from samples import GROWTH
+from lsp_samples import GROWTH
 
 pytestmark = pytest.mark.asyncio
 DEMO = Path(__file__).resolve().parents[2] / "docs" / "examples" / "marram"

@@ -9,7 +9,7 @@ import pytest
 from condhint.config import Config
 from condhint.engine import AnalysisCache, analyse_module
 from condhint.incremental import Abandoned, PieceCache, analyse_document, blocks_of, split_lines
-from samples import GROWTH
+from lsp_samples import GROWTH
 
 DEMO = Path(__file__).resolve().parents[2] / "docs" / "examples" / "marram"
 CFG = replace(Config(), kappa_formula=False)

@@ -7,7 +7,7 @@ from lsprotocol import types
 
 from lsp_support import (NEOVIM, NEOVIM_07, SHOW, VSCODE, encoding_of, expect_diagnostics, open_document, position,
                          within)
-from samples import GROWTH
+from lsp_samples import GROWTH
 
 pytestmark = pytest.mark.asyncio
 
