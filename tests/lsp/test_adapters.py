@@ -57,6 +57,7 @@ def test_settings_precedence_and_one_message(tmp_path: Path):
     assert s.config.min_severity == "info" and s.debounce == 0.005
     assert s.message().count("minSeverity") == 1
     assert not s.analysis_config.kappa_formula and s.config.kappa_formula
+    assert resolve(None, {"condhint": []}, []).problems == ()  # empty Lua tables arrive as JSON arrays
     bad = resolve(None, "not an object", None)
     assert bad.config == Config() and "expected an object" in bad.message()
 

@@ -44,7 +44,7 @@ class Settings:
 
 def section_of(value: Any, origin: str, problems: list[str]) -> Mapping[str, Any] | None:
     """The `condhint` section of a settings object: `{"condhint": {...}}` or the section itself."""
-    if value is None:
+    if value is None or value == []:  # Lua clients encode an empty table as a JSON array
         return None
     if not isinstance(value, Mapping):
         problems.append(f"{origin}: expected an object, got {type(value).__name__}")
@@ -52,6 +52,8 @@ def section_of(value: Any, origin: str, problems: list[str]) -> Mapping[str, Any
     inner = value.get(SECTION)
     if inner is None:
         return value
+    if inner == []:
+        return None
     if not isinstance(inner, Mapping):
         problems.append(f"{origin}: `{SECTION}` must be an object")
         return None
