@@ -13,7 +13,7 @@ from condhint.engine import analyse_module
 from condhint.rewrites import apply_fixes
 from condhint.rewrites.codegen import Unspellable
 from condhint.rewrites.rules import BY_ID
-from tests.rewrites.support import analysed, best_fix, context_for, fixable
+from tests.rewrites.support import analysed, best_fix, context_for, fixable, site_with
 
 EXPM1 = "{imp}\ndef f(x):  # condhint: 1e-12 <= x <= 1e-3\n    return {e}(x) - 1\n"
 
@@ -128,3 +128,21 @@ def test_the_fixed_file_parses_and_re_analyses_without_the_loss():
     assert out.splitlines()[1] == "from math import cos, sqrt, sin, hypot"
     again = analyse_module(out, "t.py", Config(), cache=None)
     assert again.report.status == "ok" and fixable(again) == []
+
+
+def test_a_name_rebound_before_the_edit_is_not_used_for_its_old_value():
+    ma = analysed("""
+    import math
+    def f(x):  # condhint: 1e6 <= x <= 1e15
+        s = math.sqrt(x + 1)
+        d = s - math.sqrt(x)
+        s = 5.0
+        return d * s
+    """)
+    from condhint.rewrites.writer import visible_names
+
+    site, node = site_with(ma, "d * s")
+    names = visible_names(ma, site, node)
+    assert sorted(names.values()) == ["d"]  # `s` no longer holds math.sqrt(x + 1) on the last line
+    site, node = site_with(ma, "s - math.sqrt(x)")
+    assert sorted(visible_names(ma, site, node).values()) == ["s"]

@@ -97,3 +97,15 @@ def test_sympy_trigonometric_simplification():
     exact = lambda x: mpmath.cos(x) ** 2 - mpmath.sin(x) ** 2  # noqa: E731
     assert worst_loss(lambda x: math.cos(x) ** 2 - math.sin(x) ** 2, exact, pts) >= 4
     assert worst_loss(lambda x: math.cos(2 * x), exact, pts) <= 0.5
+
+
+def test_sympy_finds_the_square_inside_a_root():
+    # sqrt(x² − 2xy + y²) = |x − y| (common practice); the expanded square cancels for x ≈ y.
+    src = "import math\ndef f(x, y):  # condhint: 1 <= x <= 1.0001, 1 <= y <= 1.0001\n" \
+          "    return math.sqrt(x * x - 2 * x * y + y * y)\n"
+    fix = best_fix(src)
+    assert fix.replacement == "abs(x - y)" and fix.title == "Rewrite as `abs(x - y)` (sympy together)"
+    pts = [(1 + a * 1e-5, 1 + b * 1e-5 + 1e-12) for a in range(0, 10, 3) for b in range(0, 10, 3)]
+    exact = lambda x, y: mpmath.sqrt(x * x - 2 * x * y + y * y)  # noqa: E731
+    before = worst_loss(lambda x, y: math.sqrt(max(x * x - 2 * x * y + y * y, 0.0)), exact, pts)
+    assert before >= 4 and worst_loss(lambda x, y: abs(x - y), exact, pts) <= 0.3

@@ -184,7 +184,8 @@ def fixes_for(finding: Finding, ma: "ModuleAnalysis", cfg: Config, cache: "Analy
             except SKIPPED:
                 continue
             if ev.ok:
-                verified.append(Verified(p.rule, p.title, p.target, p.replacement, text, imports, span, ev,
+                title = p.title.replace("{text}", text if len(text) <= 50 else text[:47] + "…")
+                verified.append(Verified(p.rule, title, p.target, p.replacement, text, imports, span, ev,
                                          p.cost, p.order))
         verified.sort(key=Verified.rank)
         fixes = rechecked([v.fix() for v in verified], finding, ma, cfg, cache)

@@ -186,9 +186,15 @@ def _squares_match(node: Node) -> Match | None:
     return {"x": x, "y": y} if x is not None and y is not None else None
 
 
+def _squares_build(m: Match, ctx: Context) -> list[Node]:
+    x, y = m["x"], m["y"]
+    less, more = ctx.simplest(dag.sub(x, y), (x, y)), ctx.simplest(dag.add(x, y), (x, y))
+    return [more if dag.is_const(less, 1) else dag.mul(less, more)]
+
+
 DIFFERENCE_OF_SQUARES = Rule(
     "difference-of-squares", "Factor a² − b² as (a − b)(a + b)", "any a, b", "Goldberg 1991",
-    _squares_match, lambda m, ctx: [dag.mul(dag.sub(m["x"], m["y"]), dag.add(m["x"], m["y"]))])
+    _squares_match, _squares_build)
 
 
 def _fractions_match(node: Node) -> Match | None:

@@ -27,13 +27,8 @@ from condhint.numeric.evaluate import BudgetExceeded, Deadline, forward
 from condhint.rewrites import dag, sym
 from condhint.rewrites.context import Context
 
-TRANSFORMS: tuple[tuple[str, str], ...] = (
-    ("together", "Combine into one fraction"),
-    ("cancel", "Expand into one fraction and cancel terms"),
-    ("factor", "Factor the expression"),
-    ("radsimp", "Rationalise the square roots"),
-    ("trigsimp", "Simplify the trigonometric expression"),
-)
+TRANSFORMS = ("together", "cancel", "factor", "radsimp", "trigsimp")  # sympy functions, in the order tried
+SYMPY_TITLE = "Rewrite as `{text}` (sympy {name})"  # {text}: the replacement, filled in once it is written
 MAX_TERMS = 8
 SERIES_VAR = "__series_arg"
 
@@ -58,7 +53,7 @@ def transformed(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Foun
     except ValueError:
         return
     seen = {tr.expr}
-    for name, title in TRANSFORMS:
+    for name in TRANSFORMS:
         if _late(deadline):
             return
         try:
@@ -69,7 +64,7 @@ def transformed(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Foun
             continue
         seen.add(out)
         try:
-            yield Found(f"sympy-{name}", title, sym.from_sympy(out, tr))
+            yield Found(f"sympy-{name}", SYMPY_TITLE.replace("{name}", name), sym.from_sympy(out, tr))
         except sym.Untranslatable:
             continue
 
