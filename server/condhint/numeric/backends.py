@@ -53,10 +53,21 @@ class F64:
         return np.asarray(a, dtype=float)
 
 
+# Arguments beyond binary128's range (|x| > 2**16384) make mpmath's argument reduction or exponent arithmetic
+# take unbounded time (sin of exp(7e8), exp(exp(exp(x)))): such a reference value is treated as undefined.
+_HUGE_MAG = 16384
+
+
+def _huge(a: Any) -> bool:
+    return isinstance(a, mpmath.mpf) and mpmath.isfinite(a) and a != 0 and mpmath.mag(a) > _HUGE_MAG
+
+
 def _real(fn: Callable[..., Any]) -> Callable[..., Any]:
     """An mpmath function that answers nan instead of a complex number or an exception."""
 
     def wrapped(*args: Any) -> Any:
+        if any(_huge(a) for a in args):
+            return mpmath.mpf("nan")
         try:
             r = fn(*args)
         except (ValueError, ZeroDivisionError, OverflowError, TypeError):

@@ -38,7 +38,7 @@ def forward(nodes: list[Node], inputs: dict[str, np.ndarray], backend: Any, n: i
     vals: Values = {}
     with np.errstate(all="ignore"):
         for i, node in enumerate(nodes):
-            if deadline is not None and i % 64 == 63:
+            if deadline is not None and (i % 64 == 63 or backend is MP_BACKEND):  # one mpmath op can be slow
                 deadline.check()
             k = node.kind
             if k == INPUT:
@@ -103,7 +103,7 @@ def reverse(nodes: list[Node], vals: Values, backend: Any, deadline: Deadline | 
     partials: dict[int, tuple[Any, ...]] = {}
     with np.errstate(all="ignore"):
         for i, node in enumerate(reversed(nodes)):
-            if deadline is not None and i % 64 == 63:
+            if deadline is not None and (i % 64 == 63 or backend is MP_BACKEND):
                 deadline.check()
             a = adj.get(id(node))
             if a is None or not differentiable(node):
