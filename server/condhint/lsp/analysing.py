@@ -7,6 +7,7 @@ gives up if so. Results are published (or kept for pull requests) only if they a
 from __future__ import annotations
 
 import asyncio
+import gc
 import logging
 import uuid
 from concurrent.futures import ThreadPoolExecutor
@@ -29,6 +30,7 @@ log = logging.getLogger(__name__)
 
 PROGRESS_AFTER = 0.3  # seconds: shorter analyses show no progress
 PROGRESS_EVERY = 0.25
+COLLECT_AFTER = 3.0  # seconds without analyses before the cyclic garbage collector runs in full
 
 
 class Analyser:
@@ -37,6 +39,7 @@ class Analyser:
         self.pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="condhint-analysis")
         self.pieces = PieceCache()
         self._failed: set[str] = set()
+        self._collect: asyncio.TimerHandle | None = None
 
     # ---- scheduling ---------------------------------------------------------------------------------------
     def schedule(self, state: DocumentState, delay: float | None = None) -> None:
@@ -49,7 +52,13 @@ class Analyser:
         if state.ready is None or state.ready.done():
             state.ready = loop.create_future()
         wait = self.ls.settings.debounce if delay is None else delay
+        self.ls.background.idle.clear()  # background jobs wait for the analysis
         state.pending = loop.create_task(self._run(state, state.generation, wait))
+        state.pending.add_done_callback(lambda _: self._maybe_idle())
+
+    def _maybe_idle(self) -> None:
+        if all(s.pending is None or s.pending.done() for s in self.ls.docs):
+            self.ls.background.idle.set()
 
     async def result(self, state: DocumentState, timeout: float = 10.0) -> DocumentAnalysis | None:
         """The analysis of the document's current text: waits for it (starting it at once if nothing is
@@ -118,6 +127,26 @@ class Analyser:
         if not ls.pull:
             self.publish(state)
         self.enrich(state, cfg)
+        self._keep_gc_off_the_path()
+
+    # ---- garbage collection ---------------------------------------------------------------------------------
+    def _keep_gc_off_the_path(self) -> None:
+        """The caches hold millions of objects; a full collection in the middle of an edit's analysis costs
+        tens of milliseconds. Freeze what exists now (collections skip it), and collect in full only once
+        the user has paused."""
+        gc.freeze()
+        if self._collect is not None:
+            self._collect.cancel()
+        self._collect = asyncio.get_running_loop().call_later(COLLECT_AFTER, self._collect_now)
+
+    def _collect_now(self) -> None:
+        self._collect = None
+        if any(s.pending is not None and not s.pending.done() for s in self.ls.docs):
+            self._collect = asyncio.get_running_loop().call_later(COLLECT_AFTER, self._collect_now)
+            return
+        gc.unfreeze()
+        gc.collect()
+        gc.freeze()
 
     async def _with_progress(self, state: DocumentState, fut: asyncio.Future) -> DocumentAnalysis:
         done, _ = await asyncio.wait({fut}, timeout=PROGRESS_AFTER)

@@ -48,9 +48,14 @@ def fix_key(finding: Finding) -> str:
 
 
 class Jobs:
-    """Results by key, computed once on a single thread; `want` puts a job ahead of queued ones."""
+    """Results by key, computed once on a single thread; `want` puts a job ahead of queued ones.
 
-    def __init__(self, name: str) -> None:
+    Queued jobs start only while `gate` is set: the server clears it while a document analysis is due, so
+    background work does not compete with the analysis the user waits for.
+    """
+
+    def __init__(self, name: str, gate: asyncio.Event | None = None) -> None:
+        self.gate = gate
         self.pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix=name)
         self.done: dict[str, Any] = {}
         self.running: dict[str, asyncio.Future] = {}
@@ -88,6 +93,10 @@ class Jobs:
 
     async def _run_queue(self) -> None:
         while self._queue and not self.closed:
+            if self.gate is not None:
+                await self.gate.wait()
+                if not self._queue or self.closed:
+                    return
             key, job = self._queue.pop(0)
             if key in self.done:
                 continue
@@ -115,8 +124,10 @@ class Jobs:
 
 class Background:
     def __init__(self) -> None:
-        self.formulas = Jobs("condhint-formula")
-        self.fixes = Jobs("condhint-fixes")
+        self.idle = asyncio.Event()  # set while no document analysis is due
+        self.idle.set()
+        self.formulas = Jobs("condhint-formula", self.idle)
+        self.fixes = Jobs("condhint-fixes", self.idle)
         # Subexpression analyses for hover: not queued behind whole-document analyses.
         self.hover_pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="condhint-hover")
         self.hover_cache = AnalysisCache(capacity=2000)  # used by the hover thread only
