@@ -36,6 +36,12 @@ def run_with_budget(fn: Callable[..., Any], args: tuple, seconds: float) -> Any:
     return WORKER.run(fn, args, seconds)
 
 
+def _warm_up() -> bool:
+    import sympy  # noqa: F401 - the symbolic jobs need it loaded
+
+    return True
+
+
 def _serve(conn: Any) -> None:
     while True:
         try:
@@ -62,6 +68,12 @@ class Worker:
         self._proc = ctx.Process(target=_serve, args=(child,), daemon=True, name="condhint-worker")
         self._proc.start()
         self._conn = parent
+        # Start-up and imports are not the job's time: warm the worker up outside any budget.
+        parent.send((_warm_up, ()))
+        if not parent.poll(120) or not parent.recv()[0]:
+            self._proc.kill()
+            self._proc = None
+            raise OverBudget
 
     def run(self, fn: Callable[..., Any], args: tuple, seconds: float) -> Any:
         with self._lock:

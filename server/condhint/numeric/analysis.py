@@ -66,7 +66,7 @@ class Analysis:
     note: str = ""
 
 
-def _rounds(node: Node) -> bool:
+def rounds(node: Node) -> bool:
     if node.kind == CONST:
         return node.exact is not None and node.value is not None and math.isfinite(node.value) and const_rounds(
             node.exact, node.value)
@@ -77,7 +77,7 @@ def _rounds(node: Node) -> bool:
         other = node.args[1] if node.kind == "div" else next((a for a in node.args if a.kind == CONST), None)
         if other is not None and other.kind == CONST and other.value and math.isfinite(other.value):
             m, _ = math.frexp(abs(other.value))
-            if m == 0.5 and not _rounds(other):
+            if m == 0.5 and not rounds(other):
                 return False
     return True
 
@@ -136,7 +136,7 @@ def _ratio(v: Any, a: Any, f: Any, backend: Any) -> np.ndarray:
         return np.abs(v * a / f)
 
 
-def _metrics(nodes: list[Node], vals: dict[int, Any], adj: dict[int, Any], names: list[str],
+def metrics(nodes: list[Node], vals: dict[int, Any], adj: dict[int, Any], names: list[str],
              rounding: list[int], backend: Any) -> tuple[np.ndarray, dict[str, np.ndarray], np.ndarray, dict[int, np.ndarray]]:
     """κ, κᵢ, rounding amplification A and its terms, per sample."""
     f = vals[id(nodes[-1])]
@@ -153,13 +153,13 @@ def _metrics(nodes: list[Node], vals: dict[int, Any], adj: dict[int, Any], names
     return np.asarray(kappa, dtype=float), kappa_i, np.asarray(amp, dtype=float), terms
 
 
-def _digits(x: np.ndarray, total: float) -> np.ndarray:
+def digits_of(x: np.ndarray, total: float) -> np.ndarray:
     with np.errstate(all="ignore", invalid="ignore"):
         d = np.log10(np.maximum(np.nan_to_num(x, nan=np.inf, posinf=np.inf), 1.0))
     return np.minimum(d, total)
 
 
-def _reference(nodes: list[Node], cols: dict[str, np.ndarray], m: int, deadline: Deadline | None,
+def reference_values(nodes: list[Node], cols: dict[str, np.ndarray], m: int, deadline: Deadline | None,
                shallow: bool = False) -> tuple[dict[int, Any], int]:
     """mpmath values at a precision that makes the result stable (checked by re-evaluating higher).
 
@@ -207,6 +207,22 @@ def _subset(scores: list[np.ndarray], n: int, k: int) -> np.ndarray:
     return np.array(sorted(set(int(p) for p in picks)))[: max(k, 2)]
 
 
+def keep_where_guards_hold(site: Site, cols: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """Drop the samples where a guard or branch on a computed value says the code does not run."""
+    n = len(next(iter(cols.values()))) if cols else 0
+    for flt in site.filters:
+        cnodes = topological(flt.condition)
+        if not {x.name for x in cnodes if x.kind == INPUT} <= set(cols):
+            continue
+        with np.errstate(all="ignore"):
+            cv = forward(cnodes, cols, F64_BACKEND, n)[id(flt.condition)]
+        keep = np.asarray(cv, dtype=bool) == flt.holds
+        if keep.any():
+            cols = {k: v[keep] for k, v in cols.items()}
+            n = int(keep.sum())
+    return cols
+
+
 def site_ranges(site: Site, names: list[str]) -> dict[str, InputRange]:
     return {n: site.ranges.get(n) or InputRange(Interval(), "default") for n in names}
 
@@ -218,24 +234,15 @@ def analyse(site: Site, cfg: Config, root: Node | None = None, deadline: Deadlin
     nodes = topological(root)
     names = sorted({n.name for n in nodes if n.kind == INPUT})  # type: ignore[misc]
     ranges = site_ranges(site, names)
-    u = cfg.unit_roundoff
-    total = -math.log10(u)
-    th = cfg.thresholds
     seed = zlib.crc32(root.key().encode())
     cols, bounds = sample(ranges, names, cfg.samples, seed, cfg.default_range)
     n = len(next(iter(cols.values()))) if cols else 1
     declared = any(r.source != "default" for r in ranges.values())
 
-    # Guards and branches on computed values: keep the samples where they hold.
-    for flt in site.filters:
-        cnodes = topological(flt.condition)
-        cv = forward(cnodes, cols, F64_BACKEND, n)[id(flt.condition)]
-        keep = np.asarray(cv, dtype=bool) == flt.holds
-        if keep.any():
-            cols = {k: v[keep] for k, v in cols.items()}
-            n = int(keep.sum())
+    cols = keep_where_guards_hold(site, cols)
+    n = len(next(iter(cols.values()))) if cols else 1
 
-    rounding = [i for i, node in enumerate(nodes) if _rounds(node)]
+    rounding = [i for i, node in enumerate(nodes) if rounds(node)]
     try:
         with np.errstate(all="ignore"):
             return _analyse(site, cfg, root, nodes, names, ranges, cols, bounds, n, declared, rounding, deadline,
@@ -254,7 +261,7 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
     v64 = forward(nodes, cols, F64_BACKEND, n, deadline)
     r64 = np.asarray(v64[id(root)], dtype=float)
     adj64, _ = reverse(nodes, v64, F64_BACKEND, deadline)
-    k64, ki64, a64, _ = _metrics(nodes, v64, adj64, names, rounding, F64_BACKEND)
+    k64, ki64, a64, _ = metrics(nodes, v64, adj64, names, rounding, F64_BACKEND)
     fin64 = np.isfinite(r64)
     inner_bad = np.zeros(n, dtype=bool)
     for node in nodes:
@@ -262,8 +269,8 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
             v = np.asarray(v64[id(node)], dtype=float)
             if v.dtype == float:
                 inner_bad |= ~np.isfinite(v)
-    pred64 = _digits(a64, total)
-    logk64 = _digits(k64, 99.0)
+    pred64 = digits_of(a64, total)
+    logk64 = digits_of(k64, 99.0)
     sources = {k: ranges[k].source for k in names}
 
     # Re-evaluate in mpmath only what may be reported: a predicted loss, a non-finite value, or (when the user
@@ -283,21 +290,21 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
     r_sub = r64[idx]
     shallow = bool(np.all(np.isfinite(r_sub)) and np.all(r_sub != 0) and np.max(pred64[idx]) < 12
                    and not inner_bad[idx].any())
-    vmp, dps = _reference(nodes, sub, m, deadline, shallow)
+    vmp, dps = reference_values(nodes, sub, m, deadline, shallow)
     with mpmath.workdps(dps):
         adjmp, partials = reverse(nodes, vmp, MP_BACKEND, deadline)
-        kmp, kimp, amp, terms = _metrics(nodes, vmp, adjmp, names, rounding, MP_BACKEND)
+        kmp, kimp, amp, terms = metrics(nodes, vmp, adjmp, names, rounding, MP_BACKEND)
         fmp = vmp[id(root)]
         ffl = MP_BACKEND.to_float(fmp)
         r = r64[idx]
-        err = np.array([_relerr(float(a), b) for a, b in zip(r, fmp)], dtype=float)
+        err = np.array([relative_error(float(a), b) for a, b in zip(r, fmp)], dtype=float)
         steps = _step_conditions(nodes, vmp, partials)
     defined = np.array([not mpmath.isnan(v) for v in fmp], dtype=bool)
     nonzero = np.array([v != 0 for v in fmp], dtype=bool)
     normal = defined & np.isfinite(ffl) & nonzero & (np.abs(ffl) >= 2.2250738585072014e-308)
-    meas = _digits(err / u, total)
-    predmp = _digits(amp, total)
-    logk = _digits(kmp, 99.0)
+    meas = digits_of(err / u, total)
+    predmp = digits_of(amp, total)
+    logk = digits_of(kmp, 99.0)
     res = _summary(base, sub, normal & np.isfinite(r), kmp, kimp, predmp, meas, r, keep_points, refined=True,
                    ranges=ranges)
     res.undefined_fraction = float(np.mean(~defined)) if m else 0.0
@@ -356,7 +363,7 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
     return res
 
 
-def _relerr(approx: float, exact: Any) -> float:
+def relative_error(approx: float, exact: Any) -> float:
     if mpmath.isnan(exact) or exact == 0:
         return math.nan
     if not math.isfinite(approx):

@@ -25,7 +25,7 @@ FUNCTION_SPELLINGS: dict[str, dict[str, str]] = {
               "add": "add", "subtract": "sub", "multiply": "mul", "divide": "div", "true_divide": "div",
               "negative": "neg", "float64": "float", "double": "float", "asin": "asin", "acos": "acos",
               "atan": "atan", "atan2": "atan2", "asinh": "asinh", "acosh": "acosh", "atanh": "atanh",
-              "pow": "pow"},
+              "pow": "pow", "where": "where"},
     "scipy.special": {"erf": "erf", "erfc": "erfc", "expm1": "expm1", "log1p": "log1p", "cbrt": "cbrt",
                       "exp2": "exp2", "logsumexp": "", "cosm1": "", "powm1": ""},
     "builtins": {"abs": "abs", "pow": "pow", "min": "min", "max": "max", "float": "float"},

@@ -11,7 +11,7 @@ import math
 from dataclasses import dataclass, field
 from typing import Iterable, Iterator
 
-from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, Span, const_rounds, topological
+from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, Span, topological
 from condhint.numeric.functions import FUNCTIONS
 from condhint.reading.comments import Clauses, interval_of
 from condhint.reading.names import INT_BUILTINS, Names
@@ -260,7 +260,7 @@ class Walker:
             ctx.int_names.add(_target_names(stmt.target)[0] if _target_names(stmt.target) else "")
         for target in targets:
             if isinstance(target, ast.Name):
-                if node is not None and node.kind == INPUT and not node.is_int:
+                if node is not None and node.kind == INPUT and not node.is_int and not isinstance(value, ast.Name):
                     # An opaque value (unknown call, subscript): name the input after the variable.
                     node = Node(INPUT, name=target.id, text=target.id, is_int=node.is_int)
                 self._bind(target.id, node, stmt, env, ctx)
@@ -605,10 +605,17 @@ class _Converter:
         if fid is None or any(isinstance(a, ast.Starred) for a in e.args) or any(
                 k.arg not in ("dtype", "out", "where") for k in e.keywords):
             return self._opaque(e)
-        args = [self.convert(a) for a in e.args]
+        args = [self.convert(a) for a in e.args[1:]] if fid == "where" else [self.convert(a) for a in e.args]
         if any(a is None for a in args) or not args:
             return self._opaque(e)
+        if fid == "where":
+            args = [None, *args]
         nodes: list[Node] = args  # type: ignore[assignment]
+        if fid == "where":  # np.where(cond, a, b): piecewise, like `a if cond else b`
+            cond = self._compare(e.args[0]) if len(e.args) == 3 else None
+            if cond is None:
+                return self._opaque(e)
+            return self._node(SELECT, (cond, nodes[1], nodes[2]), e, nodes[1].is_int and nodes[2].is_int)
         if fid == "float":
             return nodes[0] if len(nodes) == 1 else self._opaque(e)
         if fid == "log" and len(nodes) == 2:  # log(x, base) = log(x) / log(base)

@@ -21,7 +21,8 @@ from condhint.messages import num
 from condhint.numeric.analysis import Analysis, analyse
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
 from condhint.numeric.functions import FUNCTIONS
-from condhint.review.profile import Profile, input_names, keep_where_guards_hold, profile, swept_input, sweep
+from condhint.numeric.analysis import keep_where_guards_hold
+from condhint.review.profile import Profile, input_names, profile, swept_input, sweep
 from condhint.site import Site
 
 TABLE_ROWS = 12

@@ -15,11 +15,10 @@ import numpy as np
 
 from condhint.config import Config
 from condhint.expr import INPUT, Node, topological
-from condhint.numeric.analysis import _digits, _metrics, _reference, _relerr, _rounds
+from condhint.numeric.analysis import digits_of, metrics, reference_values, relative_error, rounds
 from condhint.numeric.backends import F64_BACKEND, MP_BACKEND
 from condhint.numeric.evaluate import Deadline, forward, reverse
 from condhint.numeric.sampling import points
-from condhint.site import Site
 
 
 @dataclass
@@ -66,22 +65,6 @@ def sweep(names: list[str], bounds: dict[str, tuple[float, float]], held: dict[s
     return {k: xs.astype(float) if k == swept else np.full(len(xs), float(held[k])) for k in names}
 
 
-def keep_where_guards_hold(site: Site, cols: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
-    """Drop the points where a guard or branch on a computed value says the code does not run."""
-    n = len(next(iter(cols.values()))) if cols else 0
-    for flt in site.filters:
-        cnodes = topological(flt.condition)
-        if not {x.name for x in cnodes if x.kind == INPUT} <= set(cols):
-            continue
-        with np.errstate(all="ignore"):
-            cv = forward(cnodes, cols, F64_BACKEND, n)[id(flt.condition)]
-        keep = np.asarray(cv, dtype=bool) == flt.holds
-        if keep.any():
-            cols = {k: v[keep] for k, v in cols.items()}
-            n = int(keep.sum())
-    return cols
-
-
 def profile(root: Node, cols: dict[str, np.ndarray], cfg: Config, seconds: float = 20.0) -> Profile:
     """Evaluate `root` at the points `cols` (which must name all of its inputs)."""
     nodes = topological(root)
@@ -90,18 +73,18 @@ def profile(root: Node, cols: dict[str, np.ndarray], cfg: Config, seconds: float
     cols = {k: np.asarray(cols[k], dtype=float) for k in names}
     u = cfg.unit_roundoff
     total = -math.log10(u)
-    rounding = [i for i, node in enumerate(nodes) if _rounds(node)]
+    rounding = [i for i, node in enumerate(nodes) if rounds(node)]
     deadline = Deadline(seconds)
     with np.errstate(all="ignore"):
         r64 = np.asarray(forward(nodes, cols, F64_BACKEND, n, deadline)[id(root)], dtype=float)
-        vmp, dps = _reference(nodes, cols, n, deadline)
+        vmp, dps = reference_values(nodes, cols, n, deadline)
         with mpmath.workdps(dps):
             adj, _ = reverse(nodes, vmp, MP_BACKEND, deadline)
-            kappa, _, amp, terms = _metrics(nodes, vmp, adj, names, rounding, MP_BACKEND)
+            kappa, _, amp, terms = metrics(nodes, vmp, adj, names, rounding, MP_BACKEND)
             ref = vmp[id(root)]
-            err = np.array([_relerr(float(a), b) for a, b in zip(r64, ref)], dtype=float)
+            err = np.array([relative_error(float(a), b) for a, b in zip(r64, ref)], dtype=float)
             value = np.array([float(v) if not (mpmath.isnan(v) or mpmath.isinf(v)) else math.nan for v in ref])
-        measured = _digits(err / u, total)
+        measured = digits_of(err / u, total)
         measured[np.isnan(err)] = np.nan  # undefined or zero reference: nothing to measure
-        return Profile(names, cols, np.asarray(kappa, dtype=float), _digits(amp, total), measured, value,
+        return Profile(names, cols, np.asarray(kappa, dtype=float), digits_of(amp, total), measured, value,
                        {k: np.asarray(v, dtype=float) for k, v in terms.items()}, nodes)

@@ -19,9 +19,9 @@ import numpy as np
 import sympy as sp
 from sympy.codegen import rewriting as sr
 
-from condhint.budget import OverBudget
+from condhint.budget import OverBudget, run_with_budget
 from condhint.expr import CONST, INPUT, Node, topological
-from condhint.numeric.analysis import _reference
+from condhint.numeric.analysis import reference_values
 from condhint.numeric.backends import F64_BACKEND
 from condhint.numeric.evaluate import BudgetExceeded, Deadline, forward
 from condhint.rewrites import dag, sym
@@ -57,7 +57,7 @@ def transformed(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Foun
         if _late(deadline):
             return
         try:
-            out = sym.with_budget(_transform, (name, tr.expr), min(ctx.sympy_seconds, _left(deadline)))
+            out = run_with_budget(_transform, (name, tr.expr), min(ctx.sympy_seconds, _left(deadline)))
         except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, AttributeError):
             continue
         if out in seen:
@@ -153,7 +153,7 @@ def series(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Found]:
     except BudgetExceeded:
         return
     try:
-        every = sym.with_budget(_series_terms, (tr.expr, var, MAX_TERMS), min(1.0, _left(deadline)))
+        every = run_with_budget(_series_terms, (tr.expr, var, MAX_TERMS), min(1.0, _left(deadline)))
     except (OverBudget, RuntimeError, ValueError, TypeError, sp.PoleError, NotImplementedError):
         return
     if not every:
@@ -200,7 +200,7 @@ def _short(u: Node) -> str:
 
 
 def _exact(root: Node, grid: np.ndarray, deadline: Deadline) -> list[Any]:
-    vals, dps = _reference(topological(root), {SERIES_VAR: grid}, len(grid), deadline)
+    vals, dps = reference_values(topological(root), {SERIES_VAR: grid}, len(grid), deadline)
     with mpmath.workdps(dps):
         return [+v for v in vals[id(root)]]
 

@@ -6,14 +6,12 @@ subexpression equal to that of an original node gives back the original node, so
 from __future__ import annotations
 
 from fractions import Fraction
-import threading
 from typing import Any, Callable
 
 import sympy as sp
 from sympy.codegen.cfunctions import Cbrt, exp2, expm1, hypot, log1p, log2, log10
 from sympy.codegen.numpy_nodes import logaddexp
 
-from condhint.budget import WORKER, run_with_budget
 from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, topological
 from condhint.rewrites import dag
 from condhint.symbolic import _BINARY, _CMP, _UNARY, _const, symbol_name
@@ -207,24 +205,3 @@ def is_zero(expr: Any) -> bool:
         return bool(expr.equals(0))
     except (TypeError, ValueError, NotImplementedError, RecursionError, AttributeError):
         return False
-
-
-WARM_UP_SECONDS = 60.0
-_warm_lock = threading.Lock()
-
-
-def _ready() -> bool:
-    """Runs in the worker process: importing this module there imports sympy and its rewriting rules."""
-    return True
-
-
-def with_budget(fn: Callable[..., Any], args: tuple, seconds: float) -> Any:
-    """`budget.run_with_budget` for sympy work. Off the main thread the work runs in the worker process; that
-    process is started (and sympy imported in it) under its own generous budget first, so starting it does
-    not count against the short budget of the work itself."""
-    if threading.current_thread() is not threading.main_thread():
-        with _warm_lock:
-            proc = getattr(WORKER, "_proc", None)
-            if proc is None or not proc.is_alive():
-                WORKER.run(_ready, (), WARM_UP_SECONDS)
-    return run_with_budget(fn, args, seconds)

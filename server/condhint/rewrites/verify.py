@@ -21,10 +21,11 @@ from typing import Any
 import mpmath
 import numpy as np
 
-from condhint.budget import OverBudget
+from condhint.budget import OverBudget, run_with_budget
 from condhint.config import Config
 from condhint.expr import INPUT, Node, topological
-from condhint.numeric.analysis import _digits, _metrics, _reference, _rounds, site_ranges
+from condhint.numeric.analysis import (digits_of, keep_where_guards_hold, metrics, reference_values, rounds,
+                                       site_ranges)
 from condhint.numeric.backends import F64_BACKEND
 from condhint.numeric.evaluate import BudgetExceeded, Deadline, forward, reverse
 from condhint.numeric.sampling import sample
@@ -65,15 +66,8 @@ class Bench:
         cols, self.bounds = sample(ranges, self.names, cfg.samples, zlib.crc32(root.key().encode()),
                                    cfg.default_range)
         cols = _with_edges(cols, self.bounds, worst_at or {})
-        n = len(next(iter(cols.values()))) if cols else 1
-        # Keep the samples where guards and branches on computed values hold, as the analysis does.
-        for flt in site.filters:
-            cv = forward(topological(flt.condition), cols, F64_BACKEND, n)[id(flt.condition)]
-            keep = np.asarray(cv, dtype=bool) == flt.holds
-            if keep.any():
-                cols = {k: v[keep] for k, v in cols.items()}
-                n = int(keep.sum())
-        self.cols, self.n = cols, n
+        cols = keep_where_guards_hold(site, cols)
+        self.cols, self.n = cols, len(next(iter(cols.values()))) if cols else 1
         self._signs: dict[str, int] = {}
         self._refs: dict[str, dict[int, Any]] = {}
         self.orig64, self.orig_pred = self.screen(root)
@@ -90,11 +84,11 @@ class Bench:
         with np.errstate(all="ignore"):
             vals = forward(nodes, self.cols, F64_BACKEND, self.n)
             adj, _ = reverse(nodes, vals, F64_BACKEND)
-            rounding = [i for i, node in enumerate(nodes) if _rounds(node)]
+            rounding = [i for i, node in enumerate(nodes) if rounds(node)]
             names = sorted({n.name for n in nodes if n.kind == INPUT})  # type: ignore[misc]
-            _, _, amp, _ = _metrics(nodes, vals, adj, names, rounding, F64_BACKEND)
+            _, _, amp, _ = metrics(nodes, vals, adj, names, rounding, F64_BACKEND)
         v = np.asarray(vals[id(root)], dtype=float)
-        return v, _digits(np.asarray(amp, dtype=float), self.total)
+        return v, digits_of(np.asarray(amp, dtype=float), self.total)
 
     def sign(self, node: Node) -> int:
         """+1 or -1 when the node has that sign at every sample where it is defined, else 0."""
@@ -118,7 +112,7 @@ class Bench:
         if len(missing):
             nodes = topological(root)
             sub = {k: v[missing] for k, v in self.cols.items()}
-            vals, dps = _reference(nodes, sub, len(missing), deadline)
+            vals, dps = reference_values(nodes, sub, len(missing), deadline)
             for i, value in zip(missing, vals[id(root)]):
                 memo[int(i)] = (value, dps)
         return [memo[int(i)] for i in idx]
@@ -187,7 +181,7 @@ class Bench:
         if not math.isfinite(approx):
             return self.total
         err = abs((mpmath.mpf(approx) - exact) / exact)
-        return float(_digits(np.array([float(err) / self.u]), self.total)[0])
+        return float(digits_of(np.array([float(err) / self.u]), self.total)[0])
 
     def at(self, i: int) -> str:
         return ", ".join(f"{k} = {v[i]:.6g}" for k, v in self.cols.items())
@@ -229,6 +223,6 @@ def prove(target: Node, replacement: Node, bench: Bench, seconds: float) -> bool
     try:
         a = sym.to_sympy(target, positive=pos, exact_forms=True).expr
         b = sym.to_sympy(replacement, positive=pos, exact_forms=True).expr
-        return bool(sym.with_budget(sym.is_zero, (a - b,), seconds))
+        return bool(run_with_budget(sym.is_zero, (a - b,), seconds))
     except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, ZeroDivisionError, AttributeError):
         return False
