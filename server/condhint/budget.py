@@ -37,8 +37,9 @@ def run_with_budget(fn: Callable[..., Any], args: tuple, seconds: float) -> Any:
 
 
 def _warm_up() -> bool:
-    import sympy  # noqa: F401 - the symbolic jobs need it loaded
+    import importlib
 
+    importlib.import_module("sympy")  # the symbolic jobs need it loaded
     return True
 
 
@@ -46,12 +47,16 @@ def _serve(conn: Any) -> None:
     while True:
         try:
             fn, args = conn.recv()
-        except EOFError:
-            return
+        except (EOFError, OSError):
+            return  # the parent went away
         try:
-            conn.send((True, fn(*args)))
+            result = (True, fn(*args))
         except Exception as exc:  # the caller decides; the worker keeps serving
-            conn.send((False, repr(exc)))
+            result = (False, repr(exc))
+        try:
+            conn.send(result)
+        except (BrokenPipeError, EOFError, OSError):
+            return
 
 
 class Worker:
@@ -79,22 +84,33 @@ class Worker:
         with self._lock:
             if self._proc is None or not self._proc.is_alive():
                 self._start()
-            self._conn.send((fn, args))
-            if not self._conn.poll(seconds):
+            try:
+                self._conn.send((fn, args))
+                done = self._conn.poll(seconds)
+            except (BrokenPipeError, EOFError, OSError):
+                self._proc = None
+                raise OverBudget from None
+            if not done:
                 self._proc.kill()
                 self._proc.join(1)
                 self._proc = None
                 raise OverBudget
-            ok, value = self._conn.recv()
+            try:
+                ok, value = self._conn.recv()
+            except (EOFError, OSError):
+                self._proc = None
+                raise OverBudget from None
         if not ok:
             raise RuntimeError(value)
         return value
 
     def close(self) -> None:
-        with self._lock:
-            if self._proc is not None:
-                self._proc.kill()
-                self._proc = None
+        """Kill the worker at once, even while a job runs (its caller then sees OverBudget or an error)."""
+        proc = self._proc
+        if proc is not None:
+            proc.kill()
+            proc.join(1)
+        self._proc = None
 
 
 WORKER = Worker()

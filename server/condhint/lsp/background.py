@@ -201,8 +201,4 @@ class Background:
         self.hover_pool.shutdown(wait=False, cancel_futures=True)
         from condhint.budget import WORKER
 
-        # Worker.close() waits for the job in progress (it takes the worker's lock); at shutdown the
-        # process is killed at once instead, which also ends that job.
-        proc = getattr(WORKER, "_proc", None)
-        if proc is not None:
-            proc.kill()
+        WORKER.close()  # kills the process at once, which also ends a job in progress

@@ -150,7 +150,8 @@ class Walker:
             head = range(fn.lineno, (fn.body[0].lineno if fn.body else fn.lineno) + 1)
             clauses = self._scope_clauses(fn.body, head)
         # Names the function rebinds are its own; the rest of the enclosing scope stays visible.
-        env = {k: v for k, v in outer_env.items() if k not in _bound_names(body)}
+        own = _bound_names(body)
+        env = {k: v for k, v in outer_env.items() if k not in own}
         self._scope(qual, body, params, clauses, env)
 
     # ---- statements -----------------------------------------------------------------------------------------
