@@ -62,12 +62,25 @@ def _huge(a: Any) -> bool:
     return isinstance(a, mpmath.mpf) and mpmath.isfinite(a) and a != 0 and mpmath.mag(a) > _HUGE_MAG
 
 
+# Functions whose value at |x| > 2**14 lies beyond binary128's range: their limit is exact enough, and mpmath's
+# high-precision path for such arguments (powers of e with huge exponents) runs for minutes.
+_SATURATING: dict[Any, Callable[[Any], Any]] = {
+    mpmath.exp: lambda x: mpmath.inf if x > 0 else mpmath.mpf(0),
+    mpmath.expm1: lambda x: mpmath.inf if x > 0 else mpmath.mpf(-1),
+    mpmath.sinh: lambda x: mpmath.inf if x > 0 else -mpmath.inf,
+    mpmath.cosh: lambda x: mpmath.inf,
+}
+
+
 def _real(fn: Callable[..., Any]) -> Callable[..., Any]:
     """An mpmath function that answers nan instead of a complex number or an exception."""
+    saturate = _SATURATING.get(fn)
 
     def wrapped(*args: Any) -> Any:
         if any(_huge(a) for a in args):
             return mpmath.mpf("nan")
+        if saturate is not None and isinstance(args[0], mpmath.mpf) and abs(args[0]) > 16384:
+            return saturate(args[0])
         try:
             r = fn(*args)
         except (ValueError, ZeroDivisionError, OverflowError, TypeError):
