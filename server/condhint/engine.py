@@ -79,7 +79,10 @@ def parse(text: str) -> tuple[ast.Module | None, Finding | None]:
         span = Span(line, col, line, col + 1)
         return None, not_analysed("", span, f"syntax error: {exc.msg}; the file is not analysed until it parses")
     except (ValueError, RecursionError, MemoryError) as exc:
-        msg = "the file contains null bytes" if "null" in str(exc) else f"the file cannot be parsed: {exc}"
+        if isinstance(exc, (RecursionError, MemoryError)):  # CPython's parser gives no text for some of these
+            msg = "the file is nested too deeply for Python's parser (Python cannot compile it either)"
+        else:
+            msg = "the file contains null bytes" if "null" in str(exc) else f"the file cannot be parsed: {exc}"
         return None, not_analysed("", Span(1, 0, 1, 1), msg)
 
 
