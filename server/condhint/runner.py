@@ -15,6 +15,7 @@ from condhint.messages import not_analysed
 from condhint.sourcefile import UnreadableFile, read_source
 
 if TYPE_CHECKING:
+    from condhint.diskcache import DiskCache
     from condhint.review.shard import Shard
 
 SKIP_DIRS = {"__pycache__", "node_modules", "site-packages", "venv", "env", "build", "dist"}
@@ -73,11 +74,14 @@ def path_order(shown: str) -> tuple:
     return tuple((1, p) for p in parts[:-1]) + ((0, parts[-1]),)
 
 
-def check_target(target: Target, cfg: Config, fixes: bool = False) -> FileReport:
+def check_target(target: Target, cfg: Config, fixes: bool = False, cache: "DiskCache | None" = None) -> FileReport:
     """Analyse one file; an unreadable file yields a CH001 finding instead of an exception.
 
     With `fixes`, verified rewrites are attached to the findings (when the rewrites package is present).
+    With `cache`, an unchanged file's report comes from the on-disk cache.
     """
+    if cache is not None:
+        return cache.check_target(target, cfg, fixes, check_target)
     cfg = cfg.for_path(target.shown)
     if target.path.suffix == ".ipynb":
         from condhint.review.notebooks import check_notebook
@@ -115,7 +119,7 @@ def attach_fixes(analysis: ModuleAnalysis, cfg: Config) -> None:
     attach(analysis, cfg)
 
 
-def _check_in_worker(job: tuple[Target, Config, bool]) -> FileReport:
+def _check_in_worker(job: tuple[Target, Config, bool, "DiskCache | None"]) -> FileReport:
     report = check_target(*job)
     for f in [*report.findings, *report.suppressed]:
         f.__dict__.pop("_site", None)  # the expression DAG stays in the worker
@@ -132,7 +136,8 @@ class RunResult:
 
 
 def check_paths(paths: list[str], cfg: Config, jobs: int = 1, shard: "Shard | None" = None,
-                fixes: bool = False, show_progress: bool | None = None) -> RunResult:
+                fixes: bool = False, show_progress: bool | None = None, cache: "DiskCache | None" = None
+                ) -> RunResult:
     """Check files and trees: `jobs` worker processes, only `shard`'s part of the files, in path order."""
     from condhint.review.parallel import map_ordered
     from condhint.review.progress import progress
@@ -144,8 +149,8 @@ def check_paths(paths: list[str], cfg: Config, jobs: int = 1, shard: "Shard | No
         if jobs <= 1 or len(targets) <= 1:
             reports = []
             for t in targets:
-                reports.append(check_target(t, cfg, fixes))
+                reports.append(check_target(t, cfg, fixes, cache))
                 advance()
         else:
-            reports = map_ordered(_check_in_worker, [(t, cfg, fixes) for t in targets], jobs, lambda i: advance())
+            reports = map_ordered(_check_in_worker, [(t, cfg, fixes, cache) for t in targets], jobs, lambda i: advance())
     return RunResult(reports)
