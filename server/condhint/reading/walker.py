@@ -418,7 +418,7 @@ class Walker:
         filters = tuple(c.filter for c in ctx.constraints if c.filter is not None
                         and all(id(x) in ids or x.kind in (INPUT, CONST) for x in topological(c.filter.condition)
                                 if x.kind == INPUT) and _inputs_subset(c.filter.condition, ranges))
-        bindings = {i: b for i, b in self._bindings.items() if i in ids}
+        bindings = {id(n): self._bindings[id(n)] for n in nodes if id(n) in self._bindings}
         self.sites.append(Site(root=root, scope=scope, span=root.span, statement_line=stmt.lineno, ranges=ranges,
                                filters=filters, bindings=tuple(sorted(set(bindings.values()), key=lambda b: b.line)),
                                bindings_by_node=bindings))
