@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import argparse
 import ast
+import faulthandler
 import hashlib
 import importlib.util
 import json
@@ -63,10 +64,14 @@ def _rank(shown: str) -> str:
     return hashlib.sha256(shown.encode()).hexdigest()
 
 
-def fixed_subset(targets: list[tuple[str, Target]], per_package: int) -> list[tuple[str, Target]]:
-    """The same files on every run (chosen by a hash of the file's path, spread over each package)."""
+def fixed_subset(targets: list[tuple[str, Target]], per_package: int, max_bytes: int | None = None
+                 ) -> list[tuple[str, Target]]:
+    """The same files on every run (chosen by a hash of the file's path, spread over each package),
+    optionally only files of at most `max_bytes` bytes."""
     by_pkg: dict[str, list[tuple[str, Target]]] = {}
     for pkg, t in targets:
+        if max_bytes is not None and t.path.stat().st_size > max_bytes:
+            continue
         by_pkg.setdefault(pkg, []).append((pkg, t))
     out: list[tuple[str, Target]] = []
     for items in by_pkg.values():
@@ -134,19 +139,23 @@ def _lines(target: Target) -> int:
 
 
 def run_corpus(targets: list[tuple[str, Target]], cfg: Config,
-               progress: Callable[[int, int, str], None] | None = None) -> CorpusResult:
+               progress: Callable[[int, int, str], None] | None = None, file_timeout: float = 60.0) -> CorpusResult:
+    """Check each file; a file still running after `file_timeout` s gets a traceback dump on stderr."""
     res = CorpusResult()
     t_all = time.perf_counter()
     for i, (pkg, t) in enumerate(targets):
         if progress:
             progress(i, len(targets), t.shown)
         t0 = time.perf_counter()
+        faulthandler.dump_traceback_later(file_timeout, exit=False)
         try:
             rep = check_target(t, cfg)
         except Exception:  # a crash: counted, kept, and the run goes on
             res.crashes.append((t.shown, traceback.format_exc()))
             res.files.append(FileResult(t.shown, pkg, _lines(t), time.perf_counter() - t0, "crash"))
             continue
+        finally:
+            faulthandler.cancel_dump_traceback_later()
         dt = time.perf_counter() - t0
         res.files.append(FileResult(t.shown, pkg, rep.lines if rep.status != "error" else 0, dt, rep.status,
                                     [f.to_dict() for f in rep.findings]))
@@ -233,27 +242,31 @@ def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--packages", nargs="*", default=list(PACKAGES))
     ap.add_argument("--per-package", type=int, metavar="N", help="a fixed subset: N files of each package")
+    ap.add_argument("--max-bytes", type=int, metavar="B", help="with --per-package: only files of at most B bytes")
     ap.add_argument("--json", metavar="FILE", help="write the summary (and crash tracebacks) as JSON")
     ap.add_argument("--review", type=int, metavar="N", default=0, help="print N sampled warnings for review")
     ap.add_argument("--review-out", metavar="FILE", help="write the review sample to FILE")
     ap.add_argument("--compare", action="store_true", help="also time ast.parse and pyflakes on the same files")
     ap.add_argument("--no-sites", action="store_true", help="skip timing the sites of the slowest files")
+    ap.add_argument("--file-timeout", type=float, default=60.0, metavar="S",
+                    help="dump a traceback when one file takes longer than S seconds")
+    ap.add_argument("--verbose", action="store_true", help="name every file as it starts")
     ap.add_argument("--quiet", action="store_true")
     args = ap.parse_args(argv)
 
     cfg = Config()
     targets = corpus_targets(tuple(args.packages), cfg)
     if args.per_package:
-        targets = fixed_subset(targets, args.per_package)
+        targets = fixed_subset(targets, args.per_package, args.max_bytes)
     if not targets:
         print("no installed package found among " + ", ".join(args.packages), file=sys.stderr)
         return 2
 
     def progress(i: int, n: int, path: str) -> None:
-        if not args.quiet and (i % 50 == 0):
+        if args.verbose or (not args.quiet and i % 50 == 0):
             print(f"[{i}/{n}] {path}", file=sys.stderr, flush=True)
 
-    res = run_corpus(targets, cfg, progress)
+    res = run_corpus(targets, cfg, progress, args.file_timeout)
     by_shown = {t.shown: t for _, t in targets}
     if not args.no_sites:
         res.slow_sites = slowest_sites(res, by_shown, cfg)
@@ -269,7 +282,11 @@ def main(argv: list[str] | None = None) -> int:
     for path, tb in res.crashes:
         print(f"CRASH {path}\n{tb}", file=sys.stderr)
     if args.json:
-        Path(args.json).write_text(json.dumps({**summary, "crash_tracebacks": dict(res.crashes)}, indent=2))
+        detail = {"crash_tracebacks": dict(res.crashes),
+                  "per_file": [{"path": f.path, "lines": f.lines, "seconds": round(f.seconds, 3), "status": f.status}
+                               for f in res.files],
+                  "all_findings": res.findings()}
+        Path(args.json).write_text(json.dumps({**summary, **detail}, indent=2, default=str))
     if args.review:
         text = review_sample(res, by_shown, args.review)
         if args.review_out:
