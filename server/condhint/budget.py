@@ -70,14 +70,19 @@ class Worker:
     def _start(self) -> None:
         ctx = mp.get_context("spawn")
         parent, child = ctx.Pipe()
-        self._proc = ctx.Process(target=_serve, args=(child,), daemon=True, name="condhint-worker")
-        self._proc.start()
-        self._conn = parent
+        proc = ctx.Process(target=_serve, args=(child,), daemon=True, name="condhint-worker")
+        proc.start()  # published once started: close() may run at any moment from another thread
+        self._proc, self._conn = proc, parent
         # Start-up and imports are not the job's time: warm the worker up outside any budget.
-        parent.send((_warm_up, ()))
-        if not parent.poll(120) or not parent.recv()[0]:
-            self._proc.kill()
-            self._proc = None
+        try:
+            parent.send((_warm_up, ()))
+            ok = parent.poll(120) and parent.recv()[0]
+        except (EOFError, OSError):  # closed meanwhile
+            ok = False
+        if not ok:
+            proc.kill()
+            if self._proc is proc:
+                self._proc = None
             raise OverBudget
 
     def run(self, fn: Callable[..., Any], args: tuple, seconds: float) -> Any:
