@@ -251,10 +251,12 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--file-timeout", type=float, default=60.0, metavar="S",
                     help="dump a traceback when one file takes longer than S seconds")
     ap.add_argument("--verbose", action="store_true", help="name every file as it starts")
+    ap.add_argument("--default-range", nargs=2, type=float, metavar=("LOW", "HIGH"),
+                    help="range for inputs without a declared one (to measure its effect on the findings)")
     ap.add_argument("--quiet", action="store_true")
     args = ap.parse_args(argv)
 
-    cfg = Config()
+    cfg = Config(default_range=tuple(args.default_range)) if args.default_range else Config()
     targets = corpus_targets(tuple(args.packages), cfg)
     if args.per_package:
         targets = fixed_subset(targets, args.per_package, args.max_bytes)
