@@ -53,6 +53,19 @@ _BINARY = {
 _CMP = {"<": sp.Lt, "<=": sp.Le, ">": sp.Gt, ">=": sp.Ge, "==": sp.Eq, "!=": sp.Ne}
 
 
+def operation(node: Node, args: list[Any], forms: dict[str, Any] | None = None) -> Any:
+    """sympy for one non-leaf node from its operands' sympy forms (`forms` may override functions)."""
+    if node.kind == COMPARE:
+        return _CMP[node.name](*args)  # type: ignore[index]
+    if node.kind == SELECT:
+        c, a, b = args
+        return sp.Piecewise((a, c), (b, True))
+    fn = (forms or {}).get(node.kind) or (_UNARY.get(node.kind) if len(args) == 1 else _BINARY.get(node.kind))
+    if fn is None:
+        raise ValueError(f"no symbolic form for {node.kind}")
+    return fn(*args)
+
+
 def to_sympy(root: Node, positive: set[str] | None = None) -> tuple[sp.Expr, dict[str, sp.Symbol]]:
     """The exact real function a DAG computes, with one real symbol per input."""
     positive = positive or set()
@@ -67,18 +80,8 @@ def to_sympy(root: Node, positive: set[str] | None = None) -> tuple[sp.Expr, dic
             vals[id(node)] = symbols[name]
         elif node.kind == CONST:
             vals[id(node)] = _const(node)
-        elif node.kind == COMPARE:
-            a, b = (vals[id(x)] for x in node.args)
-            vals[id(node)] = _CMP[node.name](a, b)  # type: ignore[index]
-        elif node.kind == SELECT:
-            c, a, b = (vals[id(x)] for x in node.args)
-            vals[id(node)] = sp.Piecewise((a, c), (b, True))
         else:
-            args = [vals[id(x)] for x in node.args]
-            fn = _UNARY.get(node.kind) if len(args) == 1 else _BINARY.get(node.kind)
-            if fn is None:
-                raise ValueError(f"no symbolic form for {node.kind}")
-            vals[id(node)] = fn(*args)
+            vals[id(node)] = operation(node, [vals[id(x)] for x in node.args])
     return vals[id(root)], symbols
 
 

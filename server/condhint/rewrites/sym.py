@@ -12,9 +12,9 @@ import sympy as sp
 from sympy.codegen.cfunctions import Cbrt, exp2, expm1, hypot, log1p, log2, log10
 from sympy.codegen.numpy_nodes import logaddexp
 
-from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, topological
+from condhint.expr import CONST, INPUT, Node, topological
 from condhint.rewrites import dag
-from condhint.symbolic import _BINARY, _CMP, _UNARY, _const, symbol_name
+from condhint.symbolic import _const, operation, symbol_name
 
 
 class Translation:
@@ -40,15 +40,9 @@ class Translation:
                 v = dag.const_value(node)
                 if v is not None:
                     self.consts.setdefault(v, node)
-            elif node.kind == COMPARE:
-                a, b = (vals[id(x)] for x in node.args)
-                vals[id(node)] = _CMP[node.name](a, b)  # type: ignore[index]
-            elif node.kind == SELECT:
-                c, a, b = (vals[id(x)] for x in node.args)
-                vals[id(node)] = sp.Piecewise((a, c), (b, True))
             else:
-                args = [vals[id(x)] for x in node.args]
-                vals[id(node)] = _forward(node.kind, args, exact_forms)
+                vals[id(node)] = operation(node, [vals[id(x)] for x in node.args],
+                                           None if exact_forms else _CODEGEN_FORMS)
             self.nodes.setdefault(vals[id(node)], node)
         self.expr = vals[id(root)]
 
@@ -61,16 +55,6 @@ _CODEGEN_FORMS = {
     "expm1": expm1, "log1p": log1p, "hypot": hypot, "logaddexp": logaddexp, "log2": log2, "exp2": exp2,
     "log10": log10, "cbrt": Cbrt,
 }
-
-
-def _forward(kind: str, args: list[Any], exact_forms: bool) -> Any:
-    """sympy for one operation; `exact_forms` expands expm1 & co. into elementary functions (for proofs)."""
-    if not exact_forms and kind in _CODEGEN_FORMS:
-        return _CODEGEN_FORMS[kind](*args)
-    fn = _UNARY.get(kind) if len(args) == 1 else _BINARY.get(kind)
-    if fn is None:
-        raise ValueError(f"no symbolic form for {kind}")
-    return fn(*args)
 
 
 def to_sympy(root: Node, atoms: set[int] | None = None, positive: Callable[[Node], bool] | None = None,
