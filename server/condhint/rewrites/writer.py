@@ -25,7 +25,7 @@ class Writer:
         self.source = ma.source
         self.tree = ma.walker.tree
         self.target = target
-        self.style = codegen.Style.of(ma.walker.tree)
+        self.style = _style(ma.walker.tree)
         self.site_nodes = topological(site.root)
         self.names = visible_names(ma, site, target)
 
@@ -91,6 +91,19 @@ def visible_names(ma: "ModuleAnalysis", site: Site, target: Node) -> dict[int, s
 
 
 _STORES: dict[int, tuple[ast.Module, dict[str, list[int]]]] = {}
+_STYLES: dict[int, tuple[ast.Module, codegen.Style]] = {}
+
+
+def _style(tree: ast.Module) -> codegen.Style:
+    """The module's import style (cached per syntax tree: every finding of a file shares it)."""
+    hit = _STYLES.get(id(tree))
+    if hit is not None and hit[0] is tree:
+        return hit[1]
+    if len(_STYLES) > 8:
+        _STYLES.clear()
+    style = codegen.Style.of(tree)
+    _STYLES[id(tree)] = (tree, style)
+    return style
 
 
 def _stores(tree: ast.Module) -> dict[str, list[int]]:
