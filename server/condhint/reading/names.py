@@ -39,6 +39,8 @@ CONSTANTS: dict[str, dict[str, str]] = {
 }
 MODULE_ALIASES = {"np": "numpy", "numpy": "numpy", "math": "math", "scipy.special": "scipy.special"}
 INT_BUILTINS = {"len", "int", "round", "ord"}
+SYMBOL_CONSTRUCTORS = {"symbols", "Symbol", "Dummy", "Wild", "var", "Function", "IndexedBase", "MatrixSymbol",
+                       "Idx", "sympify", "S", "Integer", "Rational", "Matrix"}
 
 
 @dataclass
@@ -50,12 +52,20 @@ class Names:
     constants: dict[str, str] = field(default_factory=dict)  # local name -> exact value text
     # How the file spells each function, for code generation: function id -> (module, local alias or None)
     shadowed: set[str] = field(default_factory=set)
+    symbolic: set[str] = field(default_factory=set)  # names that hold sympy symbols (`from sympy.abc import x`)
+    uses_sympy: bool = False
 
     @classmethod
     def of_module(cls, tree: ast.Module) -> "Names":
         names = cls()
         names.functions.update(FUNCTION_SPELLINGS["builtins"])
         for node in ast.walk(tree):
+            if isinstance(node, (ast.Import, ast.ImportFrom)):
+                mods = [a.name for a in node.names] if isinstance(node, ast.Import) else [node.module or ""]
+                if any(m == "sympy" or m.startswith("sympy.") for m in mods):
+                    names.uses_sympy = True
+                    if isinstance(node, ast.ImportFrom) and node.module == "sympy.abc":
+                        names.symbolic.update(a.asname or a.name for a in node.names)
             if isinstance(node, ast.Import):
                 for alias in node.names:
                     mod = alias.name
@@ -90,6 +100,14 @@ class Names:
             names.functions.pop(name, None)
             names.constants.pop(name, None)
         return names
+
+    def makes_symbols(self, value: ast.expr) -> bool:
+        """`symbols("x y")`, `sp.Symbol("x")`, … in a file that imports sympy: the names are not numbers."""
+        if not self.uses_sympy or not isinstance(value, ast.Call):
+            return False
+        f = value.func
+        name = f.id if isinstance(f, ast.Name) else f.attr if isinstance(f, ast.Attribute) else ""
+        return name in SYMBOL_CONSTRUCTORS
 
     def _module_of(self, expr: ast.expr) -> str | None:
         if isinstance(expr, ast.Name):

@@ -256,6 +256,11 @@ class Walker:
                     for name in _target_names(t):
                         env[name] = Node(INPUT, name=name, text=name)
             return
+        if self.names.makes_symbols(value):
+            for target in targets:
+                for t in _target_names(target):
+                    env[t] = None  # sympy objects, not floating-point numbers
+            return
         node = self._scan(conv, value)
         if isinstance(stmt, ast.AnnAssign) and isinstance(stmt.annotation, ast.Name) and stmt.annotation.id == "int":
             ctx.int_names.add(_target_names(stmt.target)[0] if _target_names(stmt.target) else "")
@@ -266,8 +271,11 @@ class Walker:
                     node = Node(INPUT, name=target.id, text=target.id, is_int=node.is_int)
                 self._bind(target.id, node, stmt, env, ctx)
             else:
+                shape = isinstance(value, ast.Attribute) and value.attr == "shape"  # `n, m = a.shape`
                 for t in _target_names(target):
-                    env[t] = Node(INPUT, name=t, text=t)
+                    env[t] = Node(INPUT, name=t, text=t, is_int=shape)
+                    if shape:
+                        ctx.int_names.add(t)
 
     def _bind(self, name: str, node: Node | None, stmt: ast.stmt, env: dict[str, Node | None], ctx: "_Context") -> None:
         if node is not None and node.kind not in (INPUT, CONST):
@@ -318,9 +326,13 @@ class Walker:
                         and stmt.iter.func.id in ("range", "enumerate"))
             names = _target_names(stmt.target)
             carried |= set(names)
+        # A counter (`k = 0` before the loop, `k += 1` inside) stays an integer across iterations.
+        counters = {name for name in carried if (env.get(name) is not None and env[name].is_int  # type: ignore[union-attr]
+                                                 and _int_valued_in(stmt.body, name, ctx.int_names))}
         for name in carried:
-            env[name] = Node(INPUT, name=name, text=name)
+            env[name] = Node(INPUT, name=name, text=name, is_int=name in counters)
         body_ctx = ctx.copy()
+        body_ctx.int_names.update(counters)
         if not isinstance(stmt, ast.While) and is_range:
             if isinstance(stmt.iter, ast.Call) and stmt.iter.func.id == "range":  # type: ignore[union-attr]
                 body_ctx.int_names.update(names)
@@ -332,7 +344,8 @@ class Walker:
         self._block(scope, stmt.body, env, body_ctx)
         self._block(scope, stmt.orelse, env, ctx.copy())
         for name in carried:
-            env[name] = Node(INPUT, name=name, text=name)
+            env[name] = Node(INPUT, name=name, text=name, is_int=name in counters)
+        ctx.int_names.update(counters)
 
     # ---- conditions -----------------------------------------------------------------------------------------
     def _assume(self, conv: "_Converter", test: ast.expr, holds: bool, ctx: "_Context", source: str, line: int) -> None:
@@ -505,6 +518,8 @@ class _Converter:
         if isinstance(e, ast.Name):
             if e.id in self.env:
                 return self.env[e.id]
+            if e.id in self.w.names.symbolic:
+                return None
             if e.id in self.w.module_constants:
                 return self.w.module_constants[e.id]
             c = self.w.names.constant(e)
@@ -726,6 +741,47 @@ def _bound_names(body: list[ast.stmt]) -> set[str]:
             continue
         stack.extend(ast.iter_child_nodes(node))
     return out
+
+
+_INT_OPS = (ast.Add, ast.Sub, ast.Mult, ast.FloorDiv, ast.Mod)
+
+
+def _syntactic_int(e: ast.expr, ints: set[str]) -> bool:
+    """Whether an expression is integer-valued by its syntax alone (literals, int names, len(), //, %)."""
+    if isinstance(e, ast.Constant):
+        return isinstance(e.value, int) and not isinstance(e.value, bool)
+    if isinstance(e, ast.Name):
+        return e.id in ints
+    if isinstance(e, ast.BinOp):
+        return isinstance(e.op, _INT_OPS) and _syntactic_int(e.left, ints) and _syntactic_int(e.right, ints)
+    if isinstance(e, ast.UnaryOp) and isinstance(e.op, ast.USub):
+        return _syntactic_int(e.operand, ints)
+    if isinstance(e, ast.Call) and isinstance(e.func, ast.Name):
+        return e.func.id in INT_BUILTINS
+    return False
+
+
+def _int_valued_in(body: list[ast.stmt], name: str, ints: set[str]) -> bool:
+    """Every assignment to `name` in `body` (outside nested functions) gives an integer."""
+    known = ints | {name}
+    stack: list[ast.AST] = list(body)
+    while stack:
+        node = stack.pop()
+        if isinstance(node, (*_FUNCS, ast.ClassDef, ast.Lambda)):
+            continue
+        if isinstance(node, ast.AugAssign) and _target_names(node.target) == [name]:
+            if not (isinstance(node.op, _INT_OPS) and _syntactic_int(node.value, known)):
+                return False
+        elif isinstance(node, ast.Assign) and any(name in _target_names(t) for t in node.targets):
+            if not (len(node.targets) == 1 and isinstance(node.targets[0], ast.Name)
+                    and _syntactic_int(node.value, known)):
+                return False
+        elif isinstance(node, (ast.For, ast.AsyncFor, ast.With, ast.NamedExpr, ast.AnnAssign)) and \
+                name in _bound_names([node] if isinstance(node, ast.stmt) else []) - _bound_names(
+                    getattr(node, "body", [])) - _bound_names(getattr(node, "orelse", [])):
+            return False
+        stack.extend(ast.iter_child_nodes(node))
+    return True
 
 
 def _exits(body: list[ast.stmt]) -> bool:
