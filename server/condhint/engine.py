@@ -53,7 +53,7 @@ class AnalysisCache:
             self._data.popitem(last=False)
 
 
-DEFAULT_CACHE = AnalysisCache()
+DEFAULT_CACHE = AnalysisCache(capacity=8000)  # about 2.5 KiB an entry
 
 
 @dataclass

@@ -144,7 +144,7 @@ class PieceCache:
                 self._data.popitem(last=False)
 
 
-DEFAULT_PIECES = PieceCache()
+DEFAULT_PIECES = PieceCache(capacity=1024)  # a piece holds its syntax tree and sites: keep this modest
 
 
 def split_lines(text: str) -> list[str]:

@@ -113,7 +113,7 @@ class Jobs:
         self.done[key] = None if exc is not None else fut.result()
         if exc is not None and not self.closed:
             log.warning("background job failed: %r", exc)
-        while len(self.done) > 20_000:
+        while len(self.done) > 2_000:  # bounded: enrichments of old versions are rarely asked again
             self.done.pop(next(iter(self.done)))
 
     def shutdown(self) -> None:

@@ -53,6 +53,16 @@ class CondhintProtocol(LanguageServerProtocol):
         return result
 
 
+    def _check_handler_result(self, future: Any) -> None:
+        """pygls 2.1 keeps the future of every handled notification; forget each one once it is done, or a
+        long editing session grows by a few KiB per keystroke (measured by tests/benchmarks/soak_lsp.py)."""
+        super()._check_handler_result(future)
+        for key, fut in list(self._request_futures.items()):
+            if fut is future:
+                self._request_futures.pop(key, None)
+                break
+
+
 class CondhintServer(LanguageServer):
     def __init__(self) -> None:
         super().__init__("condhint", __version__, protocol_cls=CondhintProtocol)
