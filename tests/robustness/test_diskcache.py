@@ -167,3 +167,17 @@ def test_second_check_of_the_demo_is_ten_times_faster(tmp_path: Path) -> None:
     assert warm["findings"] == cold["findings"]
     # The analysis phase; the process start (imports) is the same both times and reported in docs.
     assert warm["check"] * 10 <= cold["check"], (cold["check"], warm["check"])
+
+
+def test_check_command_cache_dir_gives_the_same_report(tmp_path, capsys):
+    from condhint.cli import main
+
+    demo = str(Path(__file__).resolve().parents[2] / "docs" / "examples" / "marram")
+    cache = tmp_path / "cache"
+    outputs = []
+    for _ in range(2):
+        main(["check", demo, "--format", "json", "--jobs", "1", "--cache-dir", str(cache)])
+        doc = json.loads(capsys.readouterr().out)
+        outputs.append(doc["findings"])
+    assert outputs[0] == outputs[1] and outputs[0]
+    assert any(cache.rglob("*")), "the cache directory holds entries"

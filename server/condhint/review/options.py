@@ -32,6 +32,9 @@ def add_review_options(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("review and CI")
     g.add_argument("--jobs", "-j", type=_jobs, metavar="N",
                    help="analyse files in N processes (default: the machine's cores)")
+    g.add_argument("--cache-dir", nargs="?", const="", metavar="DIR",
+                   help="reuse results of unchanged files from an on-disk cache, safe to share between runs and "
+                        "processes (default DIR: $CONDHINT_CACHE_DIR or ~/.cache/condhint)")
     g.add_argument("--shard", type=_shard, metavar="K/N",
                    help="check only part K of N of the files (stable by path); combine with `condhint merge`")
     g.add_argument("--diff-base", metavar="REV",
@@ -45,7 +48,12 @@ def run_settings(args: argparse.Namespace) -> dict[str, Any]:
     """Keyword arguments of `runner.check_paths` from the options."""
     from condhint.review.parallel import default_jobs
 
-    return {"jobs": args.jobs or default_jobs(), "shard": args.shard}
+    cache = None
+    if args.cache_dir is not None:
+        from condhint.diskcache import DiskCache, default_dir
+
+        cache = DiskCache(default_dir() if args.cache_dir == "" else Path(args.cache_dir))
+    return {"jobs": args.jobs or default_jobs(), "shard": args.shard, "cache": cache}
 
 
 class Narrowing:
