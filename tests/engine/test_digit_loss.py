@@ -143,3 +143,10 @@ def test_domain_error_from_rounding():
 def test_declared_range_outside_the_domain_is_reported():
     (f,) = findings("import math\ndef f(x):  # condhint: 0 <= x <= 2\n    return math.sqrt(x - 1.0) * 3.0\n")
     assert f.code == "CH302" and "declared range" in f.message
+
+
+def test_inherent_finding_sits_on_the_ill_conditioned_operation():
+    # κ of x - c is |x / (x - c)| (common practice): the subtraction, not the division around it, is where
+    # input errors are magnified.
+    (f,) = findings("def f(x):  # condhint: 0.99 <= x <= 1.01\n    return 2.5 * (x - 1.0) / 3.0\n")
+    assert f.code == "CH201" and f.expression == "x - 1.0"

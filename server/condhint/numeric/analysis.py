@@ -423,6 +423,12 @@ def _attribute(res: Analysis, nodes: list[Node], steps: dict[int, list[np.ndarra
         res.dominant = max(terms, key=lambda k: float(np.nan_to_num(terms[k][w], nan=0.0)))
     res.gain = best_gain
     res.culprit = best if best is not None and best_gain >= 10 else (res.dominant if res.category == "formula" else best)
+    if res.category == "inherent" and steps:
+        # Sensitivity to the inputs lives where an operation's own condition number is largest.
+        def step(k: int) -> float:
+            return float(sum(np.nan_to_num(c[w], nan=0.0, posinf=1e300) for c in steps[k]))
+
+        res.culprit = max(steps, key=step)
     if res.culprit is not None:
         node = nodes[res.culprit]
         cs = steps.get(res.culprit)
