@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import io
+import json
 import os
 import tokenize
 from dataclasses import dataclass
@@ -57,3 +58,13 @@ def read_source(path: Path) -> SourceFile:
         raise UnreadableFile(f"{path}: cannot read: {exc.strerror or exc}") from None
     text, encoding = decode(raw, str(path))
     return SourceFile(path, text, encoding, dominant_newline(text), st.st_mtime_ns, st.st_size, raw)
+
+
+def read_json(path: Path) -> object:
+    """A JSON document from disk; UnreadableFile says why it could not be read ("no such file", …)."""
+    try:
+        return json.loads(Path(path).read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise UnreadableFile("no such file") from None
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise UnreadableFile(f"cannot read: {exc}") from None

@@ -97,7 +97,20 @@ def test_bad_baseline_is_a_usage_error(marram_repo: Path, capsys):
     code, _, err = cli(capsys, "check", "marram", "--baseline", "x.json")
     assert code == 2 and "not a condhint baseline" in err
     code, _, err = cli(capsys, "check", "marram", "--baseline", "missing.json")
-    assert code == 2 and "no such file" in err
+    assert code == 2 and "no such file (create it with --write-baseline)" in err
+    (marram_repo / "broken.json").write_text("{not json")
+    code, _, err = cli(capsys, "check", "marram", "--baseline", "broken.json")
+    assert code == 2 and "cannot read" in err
+
+
+def test_merge_rejects_missing_and_unreadable_inputs(marram_repo: Path, capsys):
+    (marram_repo / "broken.json").write_text("{not json")
+    for name, words in (("missing.json", "no such file"), ("broken.json", "cannot read"),
+                        ("x.json", "neither condhint JSON nor SARIF")):
+        if name == "x.json":
+            (marram_repo / name).write_text('{"something": 1}')
+        code, _, err = cli(capsys, "merge", name)
+        assert code == 2 and words in err, (name, err)
 
 
 def test_diff_base_in_notebooks_compares_cells(marram_repo: Path, capsys):

@@ -15,6 +15,7 @@ from urllib.parse import unquote
 from condhint.commands.common import UsageError
 from condhint.findings import SEVERITY_RANK
 from condhint.runner import path_order
+from condhint.sourcefile import UnreadableFile, read_json
 
 LEVEL_RANK = {"note": 1, "warning": 2, "error": 3, "none": 0}
 
@@ -40,11 +41,9 @@ def _kind(doc: Any) -> str | None:
 
 def _load(path: str) -> tuple[str, dict]:
     try:
-        doc = json.loads(Path(path).read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise UsageError(f"{path}: no such file") from None
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise UsageError(f"{path}: cannot read: {exc}") from None
+        doc = read_json(Path(path))
+    except UnreadableFile as exc:
+        raise UsageError(f"{path}: {exc}") from None
     kind = _kind(doc)
     if kind is None:
         raise UsageError(f"{path}: neither condhint JSON nor SARIF 2.1.0")

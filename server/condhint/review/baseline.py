@@ -17,6 +17,7 @@ from pathlib import Path
 from condhint import __version__
 from condhint.atomic import write_text_atomic
 from condhint.findings import FileReport, Finding
+from condhint.sourcefile import UnreadableFile, read_json
 
 KIND = "condhint-baseline"
 
@@ -53,11 +54,10 @@ def write_baseline(file: Path, reports: list[FileReport]) -> int:
 
 def read_baseline(file: Path) -> Counter[str]:
     try:
-        doc = json.loads(Path(file).read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise BaselineError(f"--baseline {file}: no such file (create it with --write-baseline)") from None
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise BaselineError(f"--baseline {file}: cannot read: {exc}") from None
+        doc = read_json(Path(file))
+    except UnreadableFile as exc:
+        hint = " (create it with --write-baseline)" if str(exc) == "no such file" else ""
+        raise BaselineError(f"--baseline {file}: {exc}{hint}") from None
     if not isinstance(doc, dict) or doc.get("kind") != KIND or not isinstance(doc.get("findings"), list):
         raise BaselineError(f"--baseline {file}: not a condhint baseline")
     counts: Counter[str] = Counter()
