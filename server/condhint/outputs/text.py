@@ -19,9 +19,6 @@ def write(reports: list[FileReport], options: dict) -> str:
             cell = f"cell {f.cell}:" if f.cell is not None else ""
             for line, note in f.related:
                 lines.append(f"{f.path}:{cell}{line}:1: note: {note}")
-            for fix in f.fixes[:1]:
-                lines.append(f"    fix: {fix.title}: `{fix.replacement}` (loses {fix.measured_digits_lost_after:.1f} "
-                             f"instead of {fix.measured_digits_lost_before:.1f} digits, measured)")
     suppressed = sum(len(r.suppressed) for r in reports)
     parts = [f"{shown[s]} {s}{'s' if shown[s] != 1 else ''}" for s in ("error", "warning", "info") if shown[s]]
     summary = f"{len(reports)} file{'s' if len(reports) != 1 else ''} checked: " + (", ".join(parts) or "no findings")
