@@ -150,3 +150,15 @@ def test_inherent_finding_sits_on_the_ill_conditioned_operation():
     # input errors are magnified.
     (f,) = findings("def f(x):  # condhint: 0.99 <= x <= 1.01\n    return 2.5 * (x - 1.0) / 3.0\n")
     assert f.code == "CH201" and f.expression == "x - 1.0"
+
+
+def test_loss_explained_by_kappa_is_not_called_avoidable_on_guessed_ranges():
+    # sin of a rounded product t·ω loses about log10 κ digits, κ = |x cot x| (derivable; common practice):
+    # with declared ranges (exact inputs assumed) that is the formula's own rounding; on the default range,
+    # where the inputs are themselves computed values, it is not reported (docs/robustness.md, §5).
+    src = "import numpy as np\ndef f(t, omega):{c}\n    return np.sin(t * omega)\n"
+    assert codes(src.format(c="")) == []
+    (f,) = findings(src.format(c="  # condhint: 1e5 <= t <= 1e6, 1 <= omega <= 2"))
+    x = f.worst_at["t"] * f.worst_at["omega"]
+    assert f.code == "CH101"
+    assert f.measured_digits_lost <= math.log10(abs(x / math.tan(x))) + 1.0
