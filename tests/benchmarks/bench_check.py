@@ -5,10 +5,7 @@ Run: python tests/benchmarks/bench_check.py
 from __future__ import annotations
 
 import ast
-import io
-import statistics
 import sys
-import time
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -16,23 +13,7 @@ sys.path.insert(0, str(ROOT))
 
 from condhint.config import Config  # noqa: E402
 from condhint.engine import AnalysisCache, analyse_module  # noqa: E402
-from tests.benchmarks.numeric_module import numeric_module  # noqa: E402
-
-
-def best_of(fn, repeat: int = 3) -> float:
-    times = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return min(times)
-
-
-def pyflakes_check(text: str) -> None:
-    from pyflakes.api import check
-    from pyflakes.reporter import Reporter
-
-    check(text, "m.py", Reporter(io.StringIO(), io.StringIO()))
+from tests.benchmarks.numeric_module import best_of, numeric_module, pyflakes_check  # noqa: E402
 
 
 def row(label: str, text: str, repeat: int = 3) -> None:

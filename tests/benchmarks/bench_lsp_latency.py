@@ -14,7 +14,6 @@ from __future__ import annotations
 
 import ast
 import asyncio
-import io
 import re
 import sys
 import tempfile
@@ -28,7 +27,7 @@ sys.path.insert(0, str(ROOT / "tests" / "lsp"))
 from lsprotocol import types  # noqa: E402
 
 from lsp_support import NEOVIM_07, expect_diagnostics, open_document, running, within  # noqa: E402
-from tests.benchmarks.numeric_module import numeric_module  # noqa: E402
+from tests.benchmarks.numeric_module import best_of, numeric_module, pyflakes_check  # noqa: E402
 
 EDITS = 40
 HOVERS = 40
@@ -42,20 +41,8 @@ def pct(values: list[float], p: float) -> float:
     return 1000 * ordered[k]
 
 
-def best_of(fn, repeat: int = 5) -> float:
-    out = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        out.append(time.perf_counter() - t0)
-    return min(out)
-
-
 def pyflakes_seconds(text: str) -> float:
-    from pyflakes.api import check
-    from pyflakes.reporter import Reporter
-
-    return best_of(lambda: check(text, "m.py", Reporter(io.StringIO(), io.StringIO())))
+    return best_of(lambda: pyflakes_check(text), repeat=5)
 
 
 def edit_lines(lines: list[str]) -> list[int]:
@@ -128,7 +115,7 @@ def main() -> None:
     text = numeric_module(n)
     lines = text.count("\n")
     r = asyncio.run(measure(text))
-    t_parse = best_of(lambda: ast.parse(text))
+    t_parse = best_of(lambda: ast.parse(text), repeat=5)
     t_flakes = pyflakes_seconds(text)
     print(f"condhint language server on a generated {lines}-line numeric module ({r['findings']} findings), "
           f"over stdio")

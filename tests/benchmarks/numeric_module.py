@@ -1,7 +1,11 @@
-"""A generated, ordinary numeric Python module of a given size (invented code for benchmarks)."""
+"""Shared by the benchmarks: a generated, ordinary numeric Python module of a given size (invented code),
+and the timing helpers and references (pyflakes) every benchmark compares against in the same run."""
 from __future__ import annotations
 
+import io
 import random
+import time
+from typing import Callable
 
 TEMPLATES = [
     # Mostly stable code, a few classic losses, as in real numeric modules.
@@ -48,3 +52,21 @@ def numeric_module(lines: int, seed: int = 7) -> str:
         out.append("")
         i += 1
     return "\n".join(out) + "\n"
+
+
+def best_of(fn: Callable[[], object], repeat: int = 3) -> float:
+    """The fastest of `repeat` runs, in seconds."""
+    times = []
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t0)
+    return min(times)
+
+
+def pyflakes_check(text: str) -> None:
+    """pyflakes on `text`, its messages discarded: the ordinary checker our figures are compared with."""
+    from pyflakes.api import check
+    from pyflakes.reporter import Reporter
+
+    check(text, "m.py", Reporter(io.StringIO(), io.StringIO()))
