@@ -9,6 +9,7 @@ from __future__ import annotations
 import asyncio
 import gc
 import logging
+import time
 import uuid
 from concurrent.futures import ThreadPoolExecutor
 from functools import partial
@@ -31,6 +32,7 @@ log = logging.getLogger(__name__)
 PROGRESS_AFTER = 0.3  # seconds: shorter analyses show no progress
 PROGRESS_EVERY = 0.25
 COLLECT_AFTER = 3.0  # seconds without analyses before the cyclic garbage collector runs in full
+GARBAGE_SHARE = 0.25  # objects frozen between full collections, as a share of those the last one kept
 
 
 class Analyser:
@@ -40,6 +42,8 @@ class Analyser:
         self.pieces = PieceCache()
         self._failed: set[str] = set()
         self._collect: asyncio.TimerHandle | None = None
+        self._kept = 0  # objects the last full collection kept (then froze)
+        self._frozen_since = 0  # objects frozen after each analysis since then
 
     # ---- scheduling ---------------------------------------------------------------------------------------
     def schedule(self, state: DocumentState, delay: float | None = None) -> None:
@@ -132,21 +136,41 @@ class Analyser:
     # ---- garbage collection ---------------------------------------------------------------------------------
     def _keep_gc_off_the_path(self) -> None:
         """The caches hold millions of objects; a full collection in the middle of an edit's analysis costs
-        tens of milliseconds. Freeze what exists now (collections skip it), and collect in full only once
-        the user has paused."""
+        tens of milliseconds. Freeze what exists now (collections skip it), and collect in full once the
+        user has paused. Frozen objects include the analysis's garbage cycles, so a user who never pauses
+        gets a full collection here, between analyses, once the objects frozen since the last one reach a
+        quarter of those it kept (CPython's own rule for its oldest generation): memory stays bounded.
+        Counting the young generations costs what the analysis allocated; counting frozen objects
+        (`gc.get_freeze_count`) walks all of them, so that is done only after a full collection."""
+        young = sum(len(gc.get_objects(generation)) for generation in range(3))
         gc.freeze()
         if self._collect is not None:
             self._collect.cancel()
-        self._collect = asyncio.get_running_loop().call_later(COLLECT_AFTER, self._collect_now)
+            self._collect = None
+        if self._kept:
+            self._frozen_since += young
+        else:
+            self._kept = gc.get_freeze_count()  # the first analysis sets the base
+        if self._frozen_since > GARBAGE_SHARE * self._kept:
+            self._collect_in_full()
+        else:
+            self._collect = asyncio.get_running_loop().call_later(COLLECT_AFTER, self._collect_when_idle)
 
-    def _collect_now(self) -> None:
+    def _collect_when_idle(self) -> None:
         self._collect = None
         if any(s.pending is not None and not s.pending.done() for s in self.ls.docs):
-            self._collect = asyncio.get_running_loop().call_later(COLLECT_AFTER, self._collect_now)
+            self._collect = asyncio.get_running_loop().call_later(COLLECT_AFTER, self._collect_when_idle)
             return
+        self._collect_in_full()
+
+    def _collect_in_full(self) -> None:
+        t0 = time.perf_counter()
         gc.unfreeze()
-        gc.collect()
+        freed = gc.collect()
         gc.freeze()
+        self._kept, self._frozen_since = gc.get_freeze_count(), 0
+        log.info("full garbage collection: %d objects freed, %d kept, %.0f ms", freed, self._kept,
+                 1000 * (time.perf_counter() - t0))
 
     async def _with_progress(self, state: DocumentState, fut: asyncio.Future) -> DocumentAnalysis:
         done, _ = await asyncio.wait({fut}, timeout=PROGRESS_AFTER)
