@@ -82,3 +82,31 @@ def test_kappa_of_any_subexpression_over_the_site_inputs():
     assert sub.text == "math.sqrt(x + 1)"
     a = analyse(site, Config(), root=sub)
     assert a.kappa == pytest.approx(3.0 / (2 * 4.0), rel=1e-9)
+
+
+def test_sites_the_reference_clears_keep_their_figures(monkeypatch) -> None:
+    # A long same-sign sum: its first-order error bound predicts about two digits at risk, so it is
+    # re-evaluated in mpmath, which shows the loss stays below a digit. Then no finding is possible and the
+    # mpmath reverse pass is skipped; κ must still be that of f = c·x (exactly 1, common practice) and
+    # every figure the same as when the reverse pass runs.
+    from condhint.numeric import analysis
+
+    terms = " + ".join(f"x * {k}.5 + y * {k}.25" for k in range(150))
+    src = f"def f(x, y):  # condhint: 1 <= x <= 2, 1 <= y <= 3\n    return {terms}\n"
+    (site,) = analyse_module(src, "t.py", Config(), cache=None).sites
+    settled = analysis._settled
+    verdicts: list[bool] = []
+    monkeypatch.setattr(analysis, "_settled", lambda *args: verdicts.append(settled(*args)) or verdicts[-1])
+    quick = analyse(site, Config())
+    assert verdicts == [True]  # the shortcut was taken
+    monkeypatch.setattr(analysis, "_settled", lambda *args: False)
+    full = analyse(site, Config())
+    assert quick.refined and full.refined
+    assert quick.category is None and full.category is None
+    assert 1.0 <= quick.predicted and quick.measured < Config().thresholds.info
+    # κ of a·x + b·y with positive a, b, x, y is 1 (the sum of κ_x and κ_y); mpmath gives the same.
+    assert quick.kappa == pytest.approx(1.0, rel=1e-12) and full.kappa == pytest.approx(1.0, rel=1e-12)
+    assert quick.kappa_i.keys() == full.kappa_i.keys()
+    for name in quick.kappa_i:
+        assert quick.kappa_i[name] == pytest.approx(full.kappa_i[name], rel=1e-9)
+    assert quick.measured == full.measured
