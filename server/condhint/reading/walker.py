@@ -55,6 +55,7 @@ class Walker:
         self._bindings: dict[int, Binding] = {}
         self._opaque: dict[str, dict[str, Node]] = {}
         self.module_constants: dict[str, Node] = {}
+        self.walrus = ":=" in source.text  # otherwise no expression binds a name
 
     # ---- scopes -------------------------------------------------------------------------------------------
     def run(self) -> list[Site]:
@@ -150,7 +151,7 @@ class Walker:
             head = range(fn.lineno, (fn.body[0].lineno if fn.body else fn.lineno) + 1)
             clauses = self._scope_clauses(fn.body, head)
         # Names the function rebinds are its own; the rest of the enclosing scope stays visible.
-        own = _bound_names(body)
+        own = _bound_names(body, self.walrus)
         env = {k: v for k, v in outer_env.items() if k not in own}
         self._scope(qual, body, params, clauses, env)
 
@@ -161,7 +162,7 @@ class Walker:
                 self._statement(scope, stmt, env, ctx)
             except RecursionError:
                 self.problems.append((self.source.span(stmt), "the statement is nested too deeply to analyse"))
-                for target in _bound_names([stmt]):
+                for target in _bound_names([stmt], self.walrus):
                     env[target] = Node(INPUT, name=target, text=target)
 
     def _statement(self, scope: str, stmt: ast.stmt, env: dict[str, Node | None], ctx: "_Context") -> None:
@@ -202,7 +203,7 @@ class Walker:
         if isinstance(stmt, ast.Try) or type(stmt).__name__ == "TryStar":
             for part in (stmt.body, *(h.body for h in stmt.handlers), stmt.orelse, stmt.finalbody):  # type: ignore[attr-defined]
                 self._block(scope, part, env, ctx.copy())
-            for t in _bound_names([stmt]):
+            for t in _bound_names([stmt], self.walrus):
                 env[t] = Node(INPUT, name=t, text=t)
             return
         if isinstance(stmt, (ast.Global, ast.Nonlocal)):
@@ -213,7 +214,7 @@ class Walker:
             self._scan(conv, stmt.subject)
             for case in stmt.cases:
                 self._block(scope, case.body, dict(env), ctx.copy())
-            for t in _bound_names([stmt]):
+            for t in _bound_names([stmt], self.walrus):
                 env[t] = Node(INPUT, name=t, text=t)
             return
         for child in ast.iter_child_nodes(stmt):
@@ -311,13 +312,13 @@ class Walker:
             env.update(body_env)
             ctx.constraints = body_ctx.constraints
             return
-        for name in _bound_names(stmt.body) | _bound_names(stmt.orelse):
+        for name in _bound_names(stmt.body, self.walrus) | _bound_names(stmt.orelse, self.walrus):
             a, b = body_env.get(name), else_env.get(name)
             env[name] = a if a is b else Node(INPUT, name=name, text=name)
 
     def _loop(self, scope: str, stmt: ast.For | ast.AsyncFor | ast.While, env: dict[str, Node | None],
               ctx: "_Context", conv: "_Converter") -> None:
-        carried = _bound_names(stmt.body) | _bound_names(stmt.orelse)
+        carried = _bound_names(stmt.body, self.walrus) | _bound_names(stmt.orelse, self.walrus)
         if isinstance(stmt, ast.While):
             self._scan(conv, stmt.test)
         else:
@@ -711,12 +712,15 @@ def _target_names(target: ast.expr | None) -> list[str]:
     return []
 
 
-def _bound_names(body: list[ast.stmt]) -> set[str]:
-    """Names a block may bind (not descending into nested functions or classes)."""
+def _bound_names(body: list[ast.stmt], walrus: bool = True) -> set[str]:
+    """Names a block may bind (not descending into nested functions or classes). Without `walrus` (the
+    source has no `:=`) expressions bind nothing and are not searched."""
     out: set[str] = set()
     stack: list[ast.AST] = list(body)
     while stack:
         node = stack.pop()
+        if not walrus and isinstance(node, ast.expr):
+            continue
         if isinstance(node, (ast.Assign,)):
             for t in node.targets:
                 out.update(_target_names(t))
