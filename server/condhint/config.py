@@ -53,6 +53,7 @@ class Config:
     fail_on: str = "warning"  # the exit status is 1 when a finding reaches this severity
     min_fraction: float = 0.02  # on default ranges a finding must affect this fraction of the samples
     site_budget: float = 2.0  # seconds of numeric analysis per site
+    file_budget: float = 60.0  # seconds of numeric analysis per file (per definition in the server); inf: none
     formula_budget: float = 2.0  # seconds for the symbolic κ formula of a site
     max_site_nodes: int = 400
     kappa_formula: bool = True
@@ -110,8 +111,8 @@ def _check(cfg: Config, key: str, value: Any) -> Config:
         if not lo <= value <= 100_000:
             raise ValueError(f"expected a whole number from {lo} to 100000")
         return replace(cfg, **{key: value})
-    if key in ("min_fraction", "site_budget", "formula_budget"):
-        v = _number(value)
+    if key in ("min_fraction", "site_budget", "formula_budget", "file_budget"):
+        v = math.inf if key == "file_budget" and value == math.inf else _number(value)
         if v < 0:
             raise ValueError("expected a non-negative number")
         return replace(cfg, **{key: v})

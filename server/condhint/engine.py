@@ -87,11 +87,18 @@ def parse(text: str) -> tuple[ast.Module | None, Finding | None]:
 
 
 def analyse_site(site: Site, cfg: Config, cache: AnalysisCache | None = DEFAULT_CACHE) -> Analysis:
+    return _analysis_of(site, cfg, cache, compute=True)  # type: ignore[return-value]
+
+
+def _analysis_of(site: Site, cfg: Config, cache: AnalysisCache | None, compute: bool) -> Analysis | None:
+    """The site's analysis from the cache, or computed (None when it is not cached and `compute` is false)."""
     key = AnalysisCache.key(site, cfg, site.root.key()) if cache is not None else ""
     if cache is not None:
         hit = cache.get(key)
         if hit is not None:
             return hit
+    if not compute:
+        return None
     result = analyse(site, cfg, deadline=Deadline(cfg.site_budget))
     if cache is not None:
         cache.put(key, result)
@@ -129,9 +136,14 @@ def analyse_module(text: str, path: str, cfg: Config, cache: AnalysisCache | Non
         report.findings.append(not_analysed(path, span, why))
     out.sites = sites
     best: dict[tuple[int, int, int, int, str], Finding] = {}
+    t_sites, left = time.perf_counter(), []
     for site in sites:
+        in_budget = time.perf_counter() - t_sites <= cfg.file_budget  # past it, only cached analyses are used
         try:
-            a = analyse_site(site, cfg, cache)
+            a = _analysis_of(site, cfg, cache, compute=in_budget)
+            if a is None:
+                left.append(site)
+                continue
         except BudgetExceeded:
             report.findings.append(not_analysed(
                 path, site.span, f"not analysed: the expression exceeded its time budget of {cfg.site_budget:g} s",
@@ -150,6 +162,12 @@ def analyse_module(text: str, path: str, cfg: Config, cache: AnalysisCache | Non
         prev = best.get(k)
         if prev is None or (f.digits_lost or 0) > (prev.digits_lost or 0):
             best[k] = f
+    if left:
+        report.findings.append(not_analysed(
+            path, left[0].span, f"not analysed: the file exceeded its time budget of {cfg.file_budget:g} s; "
+            f"{len(left)} expression{'s' if len(left) > 1 else ''} from line {left[0].span.line} on "
+            f"{'were' if len(left) > 1 else 'was'} not analysed (raise `file_budget` to analyse them)",
+            left[0].scope, left[0].root.text))
     findings = sorted(best.values(), key=lambda f: (f.span.line, f.span.col, f.code))
     if cfg.kappa_formula:
         for f in findings:

@@ -6,6 +6,8 @@ Time bounds are generous multiples of the per-site budget (cfg.site_budget = 2 s
 from __future__ import annotations
 
 import ast
+import math
+import re
 import sys
 import time
 from pathlib import Path
@@ -105,6 +107,30 @@ def test_long_sum_over_many_statements(tmp_path: Path) -> None:
     doc, seconds = _check_file(tmp_path, text)
     assert seconds < 60, seconds
     _rest_analysed(doc, text)
+
+
+def test_file_budget_bounds_a_long_file_and_says_what_was_left(tmp_path: Path) -> None:
+    # 300 accumulating statements of 100 terms, a few hundredths of a second each, under a 1 s file budget.
+    write(tmp_path, "pyproject.toml", "[tool.condhint]\nfile_budget = 1.0\n")
+    lines = ["def f(x):", "    s = 0.0"]
+    lines += ["    s += " + " + ".join(f"x * {k}.25" for k in range(i * 100, i * 100 + 100)) for i in range(300)]
+    text = "\n".join(lines) + "\n    return s\n" + MARKER
+    doc, seconds = _check_file(tmp_path, text)
+    assert seconds < 1.0 + 2 * Config().site_budget + 10, seconds
+    left = [f for f in doc["findings"] if "file exceeded its time budget of 1 s" in f["message"]]
+    assert len(left) == 1, doc["findings"]
+    count = int(re.search(r"; (\d+) expressions? from line (\d+) on", left[0]["message"]).group(1))
+    assert 0 < count <= 300  # some statements were analysed (past the budget only cached analyses are used,
+    assert left[0]["code"] == "CH001" and "raise `file_budget`" in left[0]["message"]  # e.g. the marker's)
+
+
+def test_file_budget_accepts_inf_and_rejects_negatives() -> None:
+    from condhint.config import apply_settings
+
+    cfg, errors = apply_settings(Config(), {"file_budget": math.inf})
+    assert cfg.file_budget == math.inf and not errors
+    cfg, errors = apply_settings(Config(), {"file_budget": -1})
+    assert cfg.file_budget == Config().file_budget and errors and "file_budget" in errors[0]
 
 
 def _demo_copies(lines: int) -> str:
