@@ -56,6 +56,17 @@ def test_reassigned_module_names_are_inputs(analyse_src):
     assert {n.name for n in __import__("condhint.expr").expr.topological(site.root) if n.kind == "input"} == {"K", "x"}
 
 
+@pytest.mark.parametrize("bind", ["y = (M := x * 2.0)", "M = x * 2.0"])
+def test_a_name_bound_in_one_branch_is_no_longer_the_module_constant(analyse_src, bind):
+    # After `if`, a name bound in one branch only (by `=` or by `:=` inside an expression) is either the
+    # branch's value or the module's: an unknown input, not the constant 3.0 (Python's scoping rules).
+    mod = analyse_src(f"import math\nM = 3.0\ndef f(x):\n    if x > 1.0:\n        {bind}\n"
+                      "    return math.log(M + 1.5)\n")
+    site = next(s for s in mod.sites if "log" in s.root.text)
+    names = {n.name for n in __import__("condhint.expr").expr.topological(site.root) if n.kind == "input"}
+    assert names == {"M"}
+
+
 def test_integer_only_arithmetic_is_never_reported():
     assert findings("def f(n: int, m: int):\n    return (n * n - m * m) + (n - m) ** 2\n") == []
     assert findings("def f(xs):\n    n = len(xs)\n    for i in range(n):\n        j = i - n + 1\n"
