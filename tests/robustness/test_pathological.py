@@ -39,13 +39,31 @@ def _rest_analysed(doc: dict, text: str) -> None:
     assert "CH101" in codes_at(doc, marker_line(text)), doc["findings"]
 
 
-@pytest.mark.parametrize("expr", ["10**10**10", "2.0**99999", "10**10**10 * x + 1.5", "2.0**99999 * x - x"])
+@pytest.mark.parametrize("expr", ["10**10**10", "2.0**99999", "10**10**10 * x + 1.5", "2.0**99999 * x - x",
+                                  "x**(2**x)"])
 def test_huge_powers(tmp_path: Path, expr: str) -> None:
     text = f"def f(x):\n    return {expr}\n" + MARKER
     doc, seconds = _check_file(tmp_path, text)
     assert seconds < BOUND
     assert set(codes_at(doc, 2)) <= {"CH001", "CH301"}, doc["findings"]
     _rest_analysed(doc, text)
+
+
+def test_powers_beyond_every_binary_format_saturate_in_the_reference() -> None:
+    # x ** 2**20 took seconds in mpmath (it is computed exactly first); beyond 2**16384 no binary format
+    # (binary128 included, IEEE 754-2008) holds the value, so the reference is ±inf or ±0 there.
+    from mpmath import inf, isnan, mpf
+
+    from condhint.numeric.functions import _mp_pow
+
+    t0 = time.perf_counter()
+    assert _mp_pow(mpf(3), mpf(2) ** 20) == inf
+    assert time.perf_counter() - t0 < 0.1
+    assert _mp_pow(mpf(-2), mpf(20001)) == -inf and _mp_pow(mpf(-2), mpf(20000)) == inf
+    assert _mp_pow(mpf(0.5), mpf(20000)) == 0 and _mp_pow(mpf(2), mpf(-20000)) == 0
+    assert isnan(_mp_pow(mpf(-2), mpf(20000.5)))
+    for a, b in ((mpf("1.0001"), mpf(1e5)), (mpf(2), mpf(16000)), (mpf(-3), mpf(7)), (mpf(10), mpf(-300))):
+        assert _mp_pow(a, b) == a ** b  # inside the range: mpmath's own power
 
 
 def test_nested_5000_parentheses_is_a_syntax_error_python_also_refuses(tmp_path: Path) -> None:

@@ -48,6 +48,24 @@ def _logaddexp(a: Any, b: Any) -> Any:
     return m + mpmath.log(mpmath.exp(a - m) + mpmath.exp(b - m))
 
 
+_BEYOND = 16384  # log2 of binary128's range: a power beyond it is inf or 0 for every format we model
+
+
+def _mp_pow(a: Any, b: Any) -> Any:
+    """a ** b in mpmath, saturated to ±inf or ±0 when |b log2 |a|| exceeds 2**14: mpmath computes such powers
+    exactly first (x ** 2**20 takes seconds), and no binary format holds them."""
+    if isinstance(a, mpmath.mpf) and isinstance(b, mpmath.mpf) and abs(b) > 64 and a != 0 and mpmath.isfinite(a) \
+            and mpmath.isfinite(b):
+        t = b * mpmath.log(abs(a), 2)
+        if abs(t) > _BEYOND:
+            if a < 0 and not mpmath.isint(b):
+                return mpmath.mpf("nan")
+            odd = b._mpf_[2] == 0  # an integer b = man·2**exp with odd man is odd exactly when exp is 0
+            sign = -1 if a < 0 and odd else 1
+            return sign * (mpmath.inf if t > 0 else mpmath.mpf(0))
+    return a ** b
+
+
 def _pow_partials(B: Any, a: Sequence[Array], out: Array) -> tuple[Any, ...]:
     base, expo = a
     positive = B.where(base > 0, True, False)
@@ -68,7 +86,7 @@ def _fns() -> dict[str, Fn]:
         Fn("mul", 2, "the multiplication", _np(np.multiply), lambda a, b: a * b, lambda B, a, o: (a[1], a[0])),
         Fn("div", 2, "the division", _np(np.divide), v(lambda a, b: a / b, 2),
            lambda B, a, o: (1.0 / a[1], -o / a[1])),
-        Fn("pow", 2, "the power", _np(np.power), v(lambda a, b: a ** b, 2), _pow_partials,
+        Fn("pow", 2, "the power", _np(np.power), v(_mp_pow, 2), _pow_partials,
            domain="a positive base (or an integer exponent)"),
         Fn("neg", 1, "the negation", _np(np.negative), lambda a: -a, lambda B, a, o: (-1.0,), rounds=False),
         Fn("abs", 1, "abs", _np(np.abs), v(abs), lambda B, a, o: (B.sign(a[0]),), rounds=False),
