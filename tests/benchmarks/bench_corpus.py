@@ -25,7 +25,7 @@ import time
 import traceback
 import warnings
 from collections import Counter
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Callable
 
@@ -253,10 +253,13 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--verbose", action="store_true", help="name every file as it starts")
     ap.add_argument("--default-range", nargs=2, type=float, metavar=("LOW", "HIGH"),
                     help="range for inputs without a declared one (to measure its effect on the findings)")
+    ap.add_argument("--no-formulas", action="store_true",
+                    help="skip the symbolic κ formulas, as `check` does for text and Markdown output")
     ap.add_argument("--quiet", action="store_true")
     args = ap.parse_args(argv)
 
     cfg = Config(default_range=tuple(args.default_range)) if args.default_range else Config()
+    cfg = replace(cfg, kappa_formula=not args.no_formulas)
     targets = corpus_targets(tuple(args.packages), cfg)
     if args.per_package:
         targets = fixed_subset(targets, args.per_package, args.max_bytes)

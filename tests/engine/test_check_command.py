@@ -88,3 +88,21 @@ def test_unreadable_files_give_a_clear_message(tmp_path: Path, capsys):
     assert "not valid utf-8" in by["latin.py"]["message"] and by["latin.py"]["code"] == "CH001"
     assert "null bytes" in by["nul.py"]["message"]
     assert by["bom.py"]["code"] == "CH101" and by["bom.py"]["line"] == 3
+
+
+@pytest.mark.parametrize("fmt, derived", [("text", False), ("markdown", False), ("json", True), ("sarif", True)])
+def test_the_kappa_formula_is_derived_only_for_formats_that_show_it(tmp_path: Path, capsys, monkeypatch,
+                                                                     fmt, derived):
+    # sympy's κ formula is the costliest step on real code; text and Markdown do not show it.
+    import condhint.engine as engine
+
+    calls: list[str] = []
+    real = engine.kappa_formula
+    monkeypatch.setattr(engine, "kappa_formula", lambda site, cfg, root=None: calls.append(site.root.text)
+                        or real(site, cfg, root))
+    (tmp_path / "a.py").write_text(CANCEL)
+    code, out, _ = run(capsys, "check", "--format", fmt, str(tmp_path / "a.py"))
+    assert code == 1 and "np.exp(x) - 1" in out
+    assert bool(calls) == derived
+    if fmt == "json":
+        assert json.loads(out)["findings"][0]["kappa_formula"]

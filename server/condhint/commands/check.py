@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import argparse
 import sys
+from dataclasses import replace
 from pathlib import Path
 
 from condhint.commands.common import UsageError, add_config_options, config_from
@@ -13,6 +14,7 @@ from condhint.runner import check_paths
 
 HUMAN_FORMATS = ("text", "markdown")  # these show warnings and errors unless --min-severity says otherwise
 FIX_FORMATS = ("json", "sarif", "markdown")  # these carry verified fixes
+FORMULA_FORMATS = ("json", "sarif")  # these carry the symbolic κ formula
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -36,9 +38,9 @@ def run(args: argparse.Namespace) -> int:
     if missing:
         raise UsageError(f"no such file or directory: {', '.join(missing)}")
     if args.min_severity:
-        from dataclasses import replace
-
         cfg = replace(cfg, min_severity=args.min_severity) if args.format not in HUMAN_FORMATS else cfg
+    if args.format not in FORMULA_FORMATS:  # derived with sympy: on real code the costliest step, shown only there
+        cfg = replace(cfg, kappa_formula=False)
     narrowing = Narrowing(args)
     result = check_paths(args.paths, cfg, fixes=args.format in FIX_FORMATS and cfg.fixes, **run_settings(args))
     notes = narrowing.apply(result.reports)
