@@ -85,11 +85,19 @@ def to_sympy(root: Node, positive: set[str] | None = None) -> tuple[sp.Expr, dic
     return vals[id(root)], symbols
 
 
+SIMPLIFY_UP_TO = 160  # characters: `simplify` shortens small terms; on long ones it can run for minutes
+
+
 def kappa_expression(expr: sp.Expr, symbols: dict[str, sp.Symbol]) -> sp.Expr:
-    """κ = Σᵢ |xᵢ ∂f/∂xᵢ / f|, each term simplified."""
+    """κ = Σᵢ |xᵢ ∂f/∂xᵢ / f|, each term simplified: cancelled and with common factors pulled out, and, when
+    that is short enough to read, by `simplify` if it comes out shorter still."""
     terms = []
     for s in symbols.values():
-        t = sp.simplify(sp.cancel(s * sp.diff(expr, s) / expr))
+        q = sp.cancel(s * sp.diff(expr, s) / expr)
+        t = sp.factor_terms(q)
+        if len(sp.sstr(t)) <= SIMPLIFY_UP_TO:
+            full = sp.simplify(q)
+            t = full if len(sp.sstr(full)) <= len(sp.sstr(t)) else t
         if t != 0:
             terms.append(sp.Abs(t))
     return sp.Add(*terms) if terms else sp.Integer(0)

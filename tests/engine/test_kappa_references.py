@@ -110,3 +110,25 @@ def test_sites_the_reference_clears_keep_their_figures(monkeypatch) -> None:
     for name in quick.kappa_i:
         assert quick.kappa_i[name] == pytest.approx(full.kappa_i[name], rel=1e-9)
     assert quick.measured == full.measured
+
+
+SYMBOLIC = CASES + [
+    ("math.sqrt(x + 1) - math.sqrt(x)", 1e6, lambda x: x / (2 * math.sqrt(x) * math.sqrt(x + 1)),
+     "sqrt(x+1) - sqrt(x): x / (2 sqrt(x) sqrt(x+1)) (derivable)"),
+    ("math.exp(x) - 1", 1e-3, lambda x: abs(x * math.exp(x) / math.expm1(x)), "exp(x) - 1: |x eˣ / (eˣ - 1)| (derivable)"),
+    ("(1 + x / 12.0) ** (12.0 * 30.0)", 0.05,
+     lambda x: abs(360.0 * (x / 12.0) / (1 + x / 12.0)), "(1 + r/n)^(n t) w.r.t. r: n t (r/n)/(1 + r/n) (derivable)"),
+]
+
+
+@pytest.mark.parametrize("expr,x,closed,source", SYMBOLIC, ids=[f"{c[0]}@{c[1]}" for c in SYMBOLIC])
+def test_the_symbolic_kappa_formula_agrees_with_closed_forms(expr, x, closed, source):
+    # The formula shown in hover and JSON, evaluated at the point (sympy's evalf at 30 digits).
+    from condhint.symbolic import kappa_expression, to_sympy
+
+    src = f"import math\ndef f(x):  # condhint: x in [{x!r}, {x!r}]\n    return {expr}\n"
+    (site,) = analyse_module(src, "t.py", Config(), cache=None).sites
+    sym, symbols = to_sympy(site.root, {"x"} if x > 0 else set())
+    k = kappa_expression(sym, symbols)
+    value = float(k.evalf(30, subs={symbols["x"]: x}))
+    assert value == pytest.approx(closed(x), rel=1e-9), source
