@@ -18,7 +18,7 @@ from tests.benchmarks.numeric_module import best_of, numeric_module, pyflakes_ch
 
 def row(label: str, text: str, repeat: int = 3) -> None:
     lines = text.count("\n")
-    cfg = Config()
+    cfg = Config(kappa_formula=False)  # as `check --format text`; formulas are memoised per process anyway
     t_parse = best_of(lambda: ast.parse(text), repeat)
     t_flakes = best_of(lambda: pyflakes_check(text), repeat)
     t_cold = best_of(lambda: analyse_module(text, "m.py", cfg, cache=None), repeat)
