@@ -11,8 +11,10 @@ from typing import Any, Generator
 
 from lsprotocol import types
 from pygls.capabilities import get_capability
+from pygls.exceptions import JsonRpcException, JsonRpcInvalidRequest
 from pygls.lsp.server import LanguageServer
 from pygls.protocol import LanguageServerProtocol
+from pygls.protocol.json_rpc import RPCRequest
 from pygls.protocol.language_server import lsp_method
 from pygls.uris import to_fs_path
 from pygls.workspace.position_codec import PositionCodec
@@ -52,6 +54,25 @@ class CondhintProtocol(LanguageServerProtocol):
             caps.code_action_provider = True
         return result
 
+
+    def structure_message(self, data: dict[str, Any]) -> Any:
+        """pygls logs and drops a request whose parameters do not fit the protocol's types (a negative
+        position, `"params": "x"`), so its client would wait forever: answer it with InvalidParams (JSON-RPC
+        2.0, §5.1). Notifications get no answer, as the protocol says."""
+        try:
+            return super().structure_message(data)
+        except JsonRpcException as exc:
+            if isinstance(data, dict) and "method" in data and isinstance(data.get("id"), (int, str)):
+                self._send_response(data["id"], None, exc.to_response_error())
+            raise
+
+    def handle_message(self, message: Any) -> None:
+        """After `shutdown`, requests are refused with InvalidRequest (LSP 3.17, shutdown); pygls drops them."""
+        if self._shutdown and isinstance(message, RPCRequest) and message.method != types.EXIT:
+            self._send_response(message.id, None, JsonRpcInvalidRequest("the server is shutting down")
+                                .to_response_error())
+            return
+        super().handle_message(message)
 
     def _check_handler_result(self, future: Any) -> None:
         """pygls 2.1 keeps the future of every handled notification; forget each one once it is done, or a
