@@ -67,6 +67,35 @@ def test_a_name_bound_in_one_branch_is_no_longer_the_module_constant(analyse_src
     assert names == {"M"}
 
 
+@pytest.mark.parametrize("src", [
+    "from sympy import symbols\nx, y = symbols('x y')\ndef f():\n    return x**y - 1\n",  # module-level symbols
+    "from sympy import S\ndef f():\n    r = S(2) ** 70 / S(3) ** 14\n    return r - 1.5\n",  # exact sympy numbers
+    "from sympy import QQ, ring\nR, x = ring('x', QQ)\ndef f():\n    p = x**2 + 1\n    return p - 1\n",  # rings
+])
+def test_sympy_objects_are_not_binary64(analyse_src, src):
+    assert analyse_src(src).sites == []
+
+
+def test_number_constructors_of_literals_are_constants(analyse_src):
+    # np.float64(3) and np.float64("-2.5") are the binary64 numbers they spell.
+    mod = analyse_src("import numpy as np\ndef f(x):\n    return x ** (1 / np.float64(5)) + np.float64('-2.5') * x\n")
+    (site,) = mod.sites
+    nodes = __import__("condhint.expr").expr.topological(site.root)
+    assert {n.name for n in nodes if n.kind == "input"} == {"x"}
+    assert sorted(n.value for n in nodes if n.kind == "const") == [-2.5, 1.0, 5.0]
+
+
+@pytest.mark.parametrize("src", [
+    "from mpmath import mp\ndef f(x):\n    return (1 + x) ** (1 / mp.mpf(5)) - 1.0\n",
+    "import mpmath\nz = mpmath.mpf(2)\ndef f(n):\n    return (-z) ** n / 4.0 ** n\n",
+])
+def test_mpmath_numbers_are_not_binary64(analyse_src, src):
+    # mpmath numbers have their own precision and an unbounded exponent (mpmath documentation): the binary64
+    # model (unit roundoff, overflow at 2**1024) does not apply to them; plain parts (`1 + x`) still are sites.
+    texts = [site.root.text for site in analyse_src(src).sites]
+    assert texts and not any("mpf" in t or "z" in t for t in texts), texts
+
+
 def test_integer_only_arithmetic_is_never_reported():
     assert findings("def f(n: int, m: int):\n    return (n * n - m * m) + (n - m) ** 2\n") == []
     assert findings("def f(xs):\n    n = len(xs)\n    for i in range(n):\n        j = i - n + 1\n"

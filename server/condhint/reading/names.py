@@ -6,6 +6,7 @@ Spellings are tabulated per module; imports (`import numpy as np`, `from math im
 from __future__ import annotations
 
 import ast
+import math
 from dataclasses import dataclass, field
 
 _COMMON = {
@@ -40,7 +41,14 @@ CONSTANTS: dict[str, dict[str, str]] = {
 MODULE_ALIASES = {"np": "numpy", "numpy": "numpy", "math": "math", "scipy.special": "scipy.special"}
 INT_BUILTINS = {"len", "int", "round", "ord"}
 SYMBOL_CONSTRUCTORS = {"symbols", "Symbol", "Dummy", "Wild", "var", "Function", "IndexedBase", "MatrixSymbol",
-                       "Idx", "sympify", "S", "Integer", "Rational", "Matrix"}
+                       "Idx", "sympify", "S", "Integer", "Rational", "Matrix",
+                       # polynomial rings and fields, and exact domain elements (QQ(1, 3))
+                       "ring", "xring", "vring", "sring", "field", "xfield", "vfield", "sfield", "puiseux_ring",
+                       "PolyRing", "FracField", "QQ", "ZZ"}
+# mpmath numbers carry their own precision and an unbounded exponent: not binary64 either.
+MPMATH_CONSTRUCTORS = {"mpf", "mpc", "mpi", "mpmathify", "convert", "matrix"}
+# Calls that make a binary64 number from a literal: `np.float64(2)`, `np.double("0.25")`.
+NUMBER_CONSTRUCTORS = {"float64", "double"}
 
 
 @dataclass
@@ -54,6 +62,7 @@ class Names:
     shadowed: set[str] = field(default_factory=set)
     symbolic: set[str] = field(default_factory=set)  # names that hold sympy symbols (`from sympy.abc import x`)
     uses_sympy: bool = False
+    uses_mpmath: bool = False
 
     @classmethod
     def of_module(cls, tree: ast.Module) -> "Names":
@@ -62,6 +71,8 @@ class Names:
         for node in ast.walk(tree):
             if isinstance(node, (ast.Import, ast.ImportFrom)):
                 mods = [a.name for a in node.names] if isinstance(node, ast.Import) else [node.module or ""]
+                if any(m == "mpmath" or m.startswith("mpmath.") for m in mods):
+                    names.uses_mpmath = True
                 if any(m == "sympy" or m.startswith("sympy.") for m in mods):
                     names.uses_sympy = True
                     if isinstance(node, ast.ImportFrom) and node.module == "sympy.abc":
@@ -101,13 +112,18 @@ class Names:
             names.constants.pop(name, None)
         return names
 
-    def makes_symbols(self, value: ast.expr) -> bool:
-        """`symbols("x y")`, `sp.Symbol("x")`, … in a file that imports sympy: the names are not numbers."""
-        if not self.uses_sympy or not isinstance(value, ast.Call):
+    def not_binary64(self, value: ast.expr) -> bool:
+        """`symbols("x y")`, `sp.Symbol("x")`, `QQ(1, 3)` in a file that imports sympy, `mpf(2)` in one that
+        imports mpmath: objects whose arithmetic is exact, symbolic or of another precision and range."""
+        if not isinstance(value, ast.Call):
             return False
-        f = value.func
-        name = f.id if isinstance(f, ast.Name) else f.attr if isinstance(f, ast.Attribute) else ""
-        return name in SYMBOL_CONSTRUCTORS
+        name = _callee(value)
+        return (self.uses_sympy and name in SYMBOL_CONSTRUCTORS) or (self.uses_mpmath and name in MPMATH_CONSTRUCTORS)
+
+    def makes_number(self, call: ast.Call) -> bool:
+        """`mpf(5)`, `np.float64("0.25")`: one literal argument turned into a binary64-like number."""
+        return (_callee(call) in NUMBER_CONSTRUCTORS and _callee(call) not in self.shadowed and len(call.args) == 1
+                and not call.keywords and literal_number(call.args[0]) is not None)
 
     def _module_of(self, expr: ast.expr) -> str | None:
         if isinstance(expr, ast.Name):
@@ -148,3 +164,23 @@ class Names:
                 if fid == fn_id and mod in ("numpy", "math"):
                     return f"{local}.{attr}", None
         return "", None
+
+
+def _callee(call: ast.Call) -> str:
+    f = call.func
+    return f.id if isinstance(f, ast.Name) else f.attr if isinstance(f, ast.Attribute) else ""
+
+
+def literal_number(e: ast.expr) -> str | None:
+    """The exact text of a numeric literal (`5`, `-0.1`, `"0.1"`), or None."""
+    sign = ""
+    if isinstance(e, ast.UnaryOp) and isinstance(e.op, ast.USub):
+        sign, e = "-", e.operand
+    if isinstance(e, ast.Constant) and not isinstance(e.value, bool) and isinstance(e.value, (int, float, str)):
+        text = str(e.value).strip()
+        try:
+            value = float(text)
+        except ValueError:
+            return None
+        return sign + text if math.isfinite(value) else None
+    return None

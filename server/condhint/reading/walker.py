@@ -14,7 +14,7 @@ from typing import Iterable, Iterator
 from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, Span, topological
 from condhint.numeric.functions import FUNCTIONS
 from condhint.reading.comments import Clauses, interval_of
-from condhint.reading.names import INT_BUILTINS, Names
+from condhint.reading.names import INT_BUILTINS, Names, literal_number
 from condhint.reading.source import Source
 from condhint.site import Binding, Filter, InputRange, Interval, Site
 
@@ -73,10 +73,16 @@ class Walker:
     def _module_constants(self) -> dict[str, Node]:
         counts: dict[str, int] = {}
         values: dict[str, ast.expr] = {}
+        symbolic: set[str] = set()
         for stmt in self.tree.body:
+            if isinstance(stmt, ast.Assign) and self.names.not_binary64(stmt.value):
+                symbolic.update(n for t in stmt.targets for n in _target_names(t))
+                continue
             for target, value in _assignments(stmt):
                 counts[target] = counts.get(target, 0) + 1
                 values[target] = value
+        # Names bound only to sympy or mpmath objects at module level are not binary64 in any function either.
+        self.names.symbolic.update(symbolic - set(counts))
         for node in ast.walk(self.tree):
             if isinstance(node, (ast.Global, ast.Nonlocal)):
                 for n in node.names:
@@ -257,10 +263,10 @@ class Walker:
                     for name in _target_names(t):
                         env[name] = Node(INPUT, name=name, text=name)
             return
-        if self.names.makes_symbols(value):
+        if self.names.not_binary64(value):
             for target in targets:
                 for t in _target_names(target):
-                    env[t] = None  # sympy objects, not floating-point numbers
+                    env[t] = None  # sympy or mpmath objects, not binary64 numbers
             return
         node = self._scan(conv, value)
         if isinstance(stmt, ast.AnnAssign) and isinstance(stmt.annotation, ast.Name) and stmt.annotation.id == "int":
@@ -616,6 +622,12 @@ class _Converter:
             text=self.w.source.segment(self.w.source.span(test)))
 
     def _call(self, e: ast.Call) -> Node | None:
+        if self.w.names.not_binary64(e):
+            return None  # a sympy or mpmath object: the expression is not binary64 arithmetic
+        if self.w.names.makes_number(e):
+            exact = literal_number(e.args[0]) or ""
+            span = self.w.source.span(e)
+            return Node(CONST, value=float(exact), exact=exact, span=span, text=self.w.source.segment(span))
         fid = self.w.names.function(e.func)
         if isinstance(e.func, ast.Name) and e.func.id in INT_BUILTINS and e.func.id not in self.env:
             return self._opaque(e, True)
