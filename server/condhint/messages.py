@@ -56,8 +56,10 @@ def finding_for(site: Site, a: Analysis, cfg: Config, path: str) -> Finding | No
     cat = "domain" if a.category == "domain-range" else a.category
     if not a.declared and (a.fraction or 0) < cfg.min_fraction and cat in ("formula", "inherent"):
         return None
-    if cat == "inherent" and not a.declared:
-        return None  # sensitivity is a property of the real input range: shown in hover, reported when declared
+    if cat == "inherent" and not all(src != "default" for src in a.sources.values()):
+        # Sensitivity is a property of the real input ranges: with any range guessed it can be that guess's
+        # doing (on real code it nearly always was: docs/robustness.md), so it is shown in hover only.
+        return None
     severity = th.severity(a.digits) if a.category != "domain-range" else "info"
     if severity is None:
         return None

@@ -115,6 +115,15 @@ def test_sterbenz_exact_subtraction_is_inherent_not_formula():
     assert "no rewrite helps" in f.message
 
 
+def test_inherent_sensitivity_needs_every_range_declared():
+    # κ of x - y near x = y is (|x| + |y|)/|x - y| (common practice). With y's range guessed, the same
+    # sensitivity could be the guess's doing: shown in hover, not reported.
+    both = "def f(x, y):  # condhint: 0.5 <= x <= 2, 0.5 <= y <= 2\n    return x - y\n"
+    one = "def f(x, y):  # condhint: 0.5 <= x <= 2\n    return x - y\n"
+    assert [f.code for f in findings(both)] == ["CH201"]
+    assert findings(one) == []
+
+
 def test_declared_uncertainty_is_magnified_by_kappa():
     # First-order propagation: relative uncertainty of the result ≈ κ · r (common practice).
     (f,) = findings("def f(x):  # condhint: 1.001 <= x <= 1.01, x ± 1%\n    return x - 1.0\n")
