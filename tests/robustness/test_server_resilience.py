@@ -163,6 +163,9 @@ def test_requests_after_shutdown_are_refused() -> None:
     # LSP 3.17 (shutdown): requests after it error with InvalidRequest (-32600).
     m = s.call("textDocument/hover", {"textDocument": {"uri": DOC}, "position": {"line": 0, "character": 0}})
     assert m["error"]["code"] == -32600, m
+    # A diagnostic pull is declined as LSP 3.17 provides: ServerCancelled, and do not retrigger.
+    m = s.call("textDocument/diagnostic", {"textDocument": {"uri": DOC}})
+    assert m["error"]["code"] == -32802 and m["error"]["data"] == {"retriggerRequest": False}, m
     s.notify("exit", None)
     assert s.finish(timeout=30) == 0
 

@@ -67,10 +67,17 @@ class CondhintProtocol(LanguageServerProtocol):
             raise
 
     def handle_message(self, message: Any) -> None:
-        """After `shutdown`, requests are refused with InvalidRequest (LSP 3.17, shutdown); pygls drops them."""
+        """After `shutdown`, requests are refused with InvalidRequest (LSP 3.17, shutdown); pygls drops them.
+        A diagnostic pull is declined the way LSP provides for it (ServerCancelled, retriggerRequest false),
+        which clients take quietly: Neovim 0.11 pulls while it stops a client, and shows other errors."""
         if self._shutdown and isinstance(message, RPCRequest) and message.method != types.EXIT:
-            self._send_response(message.id, None, JsonRpcInvalidRequest("the server is shutting down")
-                                .to_response_error())
+            log.info("refused %s: the server is shutting down", message.method)
+            if message.method == types.TEXT_DOCUMENT_DIAGNOSTIC:
+                error = types.ResponseError(types.LSPErrorCodes.ServerCancelled, "the server is shutting down",
+                                            types.DiagnosticServerCancellationData(retrigger_request=False))
+            else:
+                error = JsonRpcInvalidRequest("the server is shutting down").to_response_error()
+            self._send_response(message.id, None, error)
             return
         super().handle_message(message)
 
