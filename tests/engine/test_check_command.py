@@ -106,3 +106,15 @@ def test_the_kappa_formula_is_derived_only_for_formats_that_show_it(tmp_path: Pa
     assert bool(calls) == derived
     if fmt == "json":
         assert json.loads(out)["findings"][0]["kappa_formula"]
+
+
+def test_text_summary_says_what_was_not_analysed(tmp_path: Path, capsys):
+    # CH001 is info, hidden by the text default (warnings and up); the summary must not read as all clear.
+    (tmp_path / "broken.py").write_text("def f(x:\n    return x\n")
+    (tmp_path / "fine.py").write_text(STABLE)
+    code, out, _ = run(capsys, "check", str(tmp_path))
+    assert code == 0
+    assert out.strip().endswith("2 files checked: no findings; 1 part not analysed "
+                                "(CH001: syntax, budgets; --min-severity info lists them)")
+    code, out, _ = run(capsys, "check", "--min-severity", "info", str(tmp_path))
+    assert "[CH001]" in out and "not analysed" not in out.splitlines()[-1]

@@ -20,9 +20,14 @@ def write(reports: list[FileReport], options: dict) -> str:
             for line, note in f.related:
                 lines.append(f"{f.path}:{cell}{line}:1: note: {note}")
     suppressed = sum(len(r.suppressed) for r in reports)
+    # What could not be analysed is an info finding; hidden, it must still not read as "no findings".
+    unread = sum(1 for r in reports for f in r.findings if f.code == "CH001" and f.rank < minimum)
     parts = [f"{shown[s]} {s}{'s' if shown[s] != 1 else ''}" for s in ("error", "warning", "info") if shown[s]]
     summary = f"{len(reports)} file{'s' if len(reports) != 1 else ''} checked: " + (", ".join(parts) or "no findings")
     if suppressed:
         summary += f" ({suppressed} suppressed)"
+    if unread:
+        summary += (f"; {unread} part{'s' if unread != 1 else ''} not analysed (CH001: syntax, budgets; "
+                    "--min-severity info lists them)")
     lines.append(summary)
     return "\n".join(lines) + "\n"
