@@ -96,6 +96,14 @@ def test_mpmath_numbers_are_not_binary64(analyse_src, src):
     assert texts and not any("mpf" in t or "z" in t for t in texts), texts
 
 
+def test_a_shape_alias_gives_integers(analyse_src):
+    # `s = a.shape; s[-1]` is an integer as much as `a.shape[-1]` is (numpy: shapes are tuples of ints).
+    mod = analyse_src("def f(a, y):\n    s = a.shape\n    return (s[-1] + y) * 0.5\n")
+    (site,) = mod.sites
+    nodes = __import__("condhint.expr").expr.topological(site.root)
+    assert {(n.text, n.is_int) for n in nodes if n.kind == "input"} == {("s[-1]", True), ("y", False)}
+
+
 def test_integer_only_arithmetic_is_never_reported():
     assert findings("def f(n: int, m: int):\n    return (n * n - m * m) + (n - m) ** 2\n") == []
     assert findings("def f(xs):\n    n = len(xs)\n    for i in range(n):\n        j = i - n + 1\n"

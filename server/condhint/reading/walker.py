@@ -539,12 +539,15 @@ class _Converter:
             c = self.w.names.constant(e)
             if c is not None:
                 return _named_const(c, self.w.source.span(e), self.w.source.segment(self.w.source.span(e)))
-            if e.attr in ("size", "ndim"):
+            if e.attr in ("size", "ndim", "shape"):  # integers (a shape is a tuple of them)
                 return self._leaf(e, True)
             return self._leaf(e)
         if isinstance(e, ast.Subscript):
             base = e.value
-            is_int = isinstance(base, ast.Attribute) and base.attr == "shape"
+            # `a.shape[-1]`, and `s[-1]` after `s = a.shape`: integers
+            alias = self.env.get(base.id) if isinstance(base, ast.Name) else None
+            is_int = (isinstance(base, ast.Attribute) and base.attr == "shape") or (
+                alias is not None and alias.is_int and alias.kind == INPUT)
             return self._opaque(e, is_int)
         if isinstance(e, ast.UnaryOp):
             if isinstance(e.op, ast.UAdd):
