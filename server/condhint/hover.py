@@ -24,6 +24,7 @@ _SOURCES = {
     "assert": "an assert",
     "guard": "a guard (`if …: raise/return`)",
     "branch": "the enclosing branch",
+    "range": "the enclosing `for … in range(…)`",
     "default": "the default range",
 }
 

@@ -36,7 +36,7 @@ class InputRange:
     """The range an input is sampled on and where that range came from."""
 
     interval: Interval
-    source: str  # "comment", "assert", "guard", "branch", "default", combined with "+" when narrowed twice
+    source: str  # "comment", "assert", "guard", "branch", "range", "default", combined with "+" when narrowed twice
     line: int | None = None
     uncertainty: float | None = None  # declared relative uncertainty (0.01 for ±1%)
     uncertainty_abs: float | None = None  # declared absolute uncertainty

@@ -104,6 +104,21 @@ def test_a_shape_alias_gives_integers(analyse_src):
     assert {(n.text, n.is_int) for n in nodes if n.kind == "input"} == {("s[-1]", True), ("y", False)}
 
 
+@pytest.mark.parametrize("loop, bounds", [("range(1, 10)", (1.0, 9.0)), ("range(10, 0, -2)", (2.0, 10.0)),
+                                          ("range(5)", (0.0, 4.0)), ("range(n)", None)])
+def test_a_range_loop_bounds_its_counter(analyse_src, loop, bounds):
+    # Python's range: start, start + step, … before stop (the language reference); literal bounds only.
+    mod = analyse_src(f"import math\ndef f(x, n):\n    s = 0.0\n    for k in {loop}:\n"
+                      "        s += x ** k / math.factorial(k)\n    return s\n")
+    (site,) = mod.sites
+    r = site.ranges["k"]
+    assert r.is_int
+    if bounds is None:
+        assert r.source == "default"
+    else:
+        assert (r.interval.low, r.interval.high, r.source) == (*bounds, "range")
+
+
 def test_integer_only_arithmetic_is_never_reported():
     assert findings("def f(n: int, m: int):\n    return (n * n - m * m) + (n - m) ** 2\n") == []
     assert findings("def f(xs):\n    n = len(xs)\n    for i in range(n):\n        j = i - n + 1\n"

@@ -345,6 +345,9 @@ class Walker:
                 body_ctx.int_names.update(names)
                 for n in names:
                     env[n] = Node(INPUT, name=n, text=n, is_int=True)
+                bounds = _range_bounds(stmt.iter)
+                if bounds is not None and len(names) == 1:  # `for k in range(1, 10)`: k in [1, 9]
+                    body_ctx.constraints.append(Constraint(names[0], Interval(*bounds), None, "range", stmt.lineno))
             elif names:
                 body_ctx.int_names.add(names[0])
                 env[names[0]] = Node(INPUT, name=names[0], text=names[0], is_int=True)
@@ -571,8 +574,7 @@ class _Converter:
             if a is None or b is None:
                 return None
             op = _BINOPS[type(e.op)]
-            is_int = a.is_int and b.is_int and (op in ("add", "sub", "mul") or (
-                op == "pow" and b.kind == CONST and (b.value or 0) >= 0))
+            is_int = a.is_int and b.is_int and (op in ("add", "sub", "mul") or (op == "pow" and self._non_negative(b)))
             return self._node(op, (a, b), e, is_int)
         if isinstance(e, ast.Call):
             return self._call(e)
@@ -598,13 +600,29 @@ class _Converter:
             return None
         return None
 
+    def _non_negative(self, n: Node) -> bool:
+        """A constant ≥ 0, or an input known to be ≥ 0 here (a `range` counter from 0 up, a guard)."""
+        if n.kind == CONST:
+            return (n.value or 0) >= 0
+        return n.kind == INPUT and any(c.name == n.name and c.interval is not None and c.interval.low >= 0
+                                       for c in self.ctx.constraints)
+
     def _comprehension(self, e: ast.ListComp | ast.SetComp | ast.GeneratorExp | ast.DictComp) -> None:
         inner = dict(self.env)
+        ctx = self.ctx.copy()
         for gen in e.generators:
             self.w._scan(self, gen.iter)
+            over_range = (isinstance(gen.iter, ast.Call) and isinstance(gen.iter.func, ast.Name)
+                          and gen.iter.func.id == "range" and "range" not in self.env and isinstance(gen.target, ast.Name))
             for t in _target_names(gen.target):
-                inner[t] = Node(INPUT, name=t, text=t)
-        sub = _Converter(self.w, inner, self.ctx, self.scope, self.stmt)
+                inner[t] = Node(INPUT, name=t, text=t, is_int=over_range)
+            if over_range:  # `[… for j in range(1, n)]`: j is an integer, bounded when the bounds are literals
+                ctx.int_names.add(gen.target.id)  # type: ignore[union-attr]
+                bounds = _range_bounds(gen.iter)  # type: ignore[arg-type]
+                if bounds is not None:
+                    ctx.constraints.append(Constraint(gen.target.id, Interval(*bounds), None, "range",  # type: ignore[union-attr]
+                                                      gen.iter.lineno))
+        sub = _Converter(self.w, inner, ctx, self.scope, self.stmt)
         parts = [e.key, e.value] if isinstance(e, ast.DictComp) else [e.elt]
         for gen in e.generators:
             parts.extend(gen.ifs)
@@ -801,6 +819,24 @@ def _int_valued_in(body: list[ast.stmt], name: str, ints: set[str]) -> bool:
             return False
         stack.extend(ast.iter_child_nodes(node))
     return True
+
+
+def _range_bounds(call: ast.Call) -> tuple[float, float] | None:
+    """The smallest and largest values of `range(…)` with integer literal arguments, or None."""
+    vals = [_int_literal(a) for a in call.args]
+    if call.keywords or not 1 <= len(vals) <= 3 or any(v is None for v in vals):
+        return None
+    items = range(*vals) if vals[-1] != 0 or len(vals) < 3 else range(0)  # type: ignore[arg-type]
+    return (float(min(items[0], items[-1])), float(max(items[0], items[-1]))) if items else None
+
+
+def _int_literal(e: ast.expr) -> int | None:
+    if isinstance(e, ast.UnaryOp) and isinstance(e.op, ast.USub):
+        v = _int_literal(e.operand)
+        return None if v is None else -v
+    if isinstance(e, ast.Constant) and isinstance(e.value, int) and not isinstance(e.value, bool):
+        return e.value
+    return None
 
 
 def _exits(body: list[ast.stmt]) -> bool:
