@@ -119,6 +119,15 @@ def test_a_range_loop_bounds_its_counter(analyse_src, loop, bounds):
         assert (r.interval.low, r.interval.high, r.source) == (*bounds, "range")
 
 
+def test_comprehension_counters_over_range_are_integers(analyse_src):
+    # The Hilbert-like `1. / (i + j - 1)`: i + j - 1 is integer arithmetic (exact); only the division rounds.
+    mod = analyse_src("def f(n):\n    A = []\n    for i in range(1, 13):\n"
+                      "        A.append([1. / (i + j - 1) for j in range(1, n + 1)])\n    return A\n")
+    (site,) = [s for s in mod.sites if s.root.text == "1. / (i + j - 1)"]
+    assert site.ranges["j"].is_int and site.ranges["i"].interval.high == 12.0
+    assert site.root.args[1].is_int  # the denominator
+
+
 def test_integer_only_arithmetic_is_never_reported():
     assert findings("def f(n: int, m: int):\n    return (n * n - m * m) + (n - m) ** 2\n") == []
     assert findings("def f(xs):\n    n = len(xs)\n    for i in range(n):\n        j = i - n + 1\n"
