@@ -121,7 +121,7 @@ class Names:
         return (self.uses_sympy and name in SYMBOL_CONSTRUCTORS) or (self.uses_mpmath and name in MPMATH_CONSTRUCTORS)
 
     def makes_number(self, call: ast.Call) -> bool:
-        """`mpf(5)`, `np.float64("0.25")`: one literal argument turned into a binary64-like number."""
+        """`np.float64(5)`, `np.float64("0.25")`: one literal argument turned into a binary64 number."""
         return (_callee(call) in NUMBER_CONSTRUCTORS and _callee(call) not in self.shadowed and len(call.args) == 1
                 and not call.keywords and literal_number(call.args[0]) is not None)
 

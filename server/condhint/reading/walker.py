@@ -330,7 +330,7 @@ class Walker:
         else:
             self._scan(conv, stmt.iter)
             is_range = (isinstance(stmt.iter, ast.Call) and isinstance(stmt.iter.func, ast.Name)
-                        and stmt.iter.func.id in ("range", "enumerate"))
+                        and stmt.iter.func.id in ("range", "enumerate") and stmt.iter.func.id not in env)
             names = _target_names(stmt.target)
             carried |= set(names)
         # A counter (`k = 0` before the loop, `k += 1` inside) stays an integer across iterations.
@@ -341,13 +341,12 @@ class Walker:
         body_ctx = ctx.copy()
         body_ctx.int_names.update(counters)
         if not isinstance(stmt, ast.While) and is_range:
-            if isinstance(stmt.iter, ast.Call) and stmt.iter.func.id == "range":  # type: ignore[union-attr]
+            call = _range_call(stmt.iter, env)
+            if call is not None:
                 body_ctx.int_names.update(names)
                 for n in names:
                     env[n] = Node(INPUT, name=n, text=n, is_int=True)
-                bounds = _range_bounds(stmt.iter)
-                if bounds is not None and len(names) == 1:  # `for k in range(1, 10)`: k in [1, 9]
-                    body_ctx.constraints.append(Constraint(names[0], Interval(*bounds), None, "range", stmt.lineno))
+                body_ctx.constraints.extend(_range_constraint(stmt.target, call))
             elif names:
                 body_ctx.int_names.add(names[0])
                 env[names[0]] = Node(INPUT, name=names[0], text=names[0], is_int=True)
@@ -612,16 +611,12 @@ class _Converter:
         ctx = self.ctx.copy()
         for gen in e.generators:
             self.w._scan(self, gen.iter)
-            over_range = (isinstance(gen.iter, ast.Call) and isinstance(gen.iter.func, ast.Name)
-                          and gen.iter.func.id == "range" and "range" not in self.env and isinstance(gen.target, ast.Name))
+            call = _range_call(gen.iter, self.env) if isinstance(gen.target, ast.Name) else None
             for t in _target_names(gen.target):
-                inner[t] = Node(INPUT, name=t, text=t, is_int=over_range)
-            if over_range:  # `[… for j in range(1, n)]`: j is an integer, bounded when the bounds are literals
-                ctx.int_names.add(gen.target.id)  # type: ignore[union-attr]
-                bounds = _range_bounds(gen.iter)  # type: ignore[arg-type]
-                if bounds is not None:
-                    ctx.constraints.append(Constraint(gen.target.id, Interval(*bounds), None, "range",  # type: ignore[union-attr]
-                                                      gen.iter.lineno))
+                inner[t] = Node(INPUT, name=t, text=t, is_int=call is not None)
+            if call is not None:  # `[… for j in range(1, n)]`: j is an integer, bounded when the bounds are literals
+                ctx.int_names.update(_target_names(gen.target))
+                ctx.constraints.extend(_range_constraint(gen.target, call))
         sub = _Converter(self.w, inner, ctx, self.scope, self.stmt)
         parts = [e.key, e.value] if isinstance(e, ast.DictComp) else [e.elt]
         for gen in e.generators:
@@ -819,6 +814,21 @@ def _int_valued_in(body: list[ast.stmt], name: str, ints: set[str]) -> bool:
             return False
         stack.extend(ast.iter_child_nodes(node))
     return True
+
+
+def _range_call(e: ast.expr, env: dict[str, Node | None]) -> ast.Call | None:
+    """`e` if it calls the builtin `range`, else None."""
+    if isinstance(e, ast.Call) and isinstance(e.func, ast.Name) and e.func.id == "range" and "range" not in env:
+        return e
+    return None
+
+
+def _range_constraint(target: ast.expr, call: ast.Call) -> list[Constraint]:
+    """`for k in range(1, 10)`: k in [1, 9], when the bounds are integer literals and the target one name."""
+    bounds = _range_bounds(call)
+    if bounds is None or not isinstance(target, ast.Name):
+        return []
+    return [Constraint(target.id, Interval(*bounds), None, "range", call.lineno)]
 
 
 def _range_bounds(call: ast.Call) -> tuple[float, float] | None:
