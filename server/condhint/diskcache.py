@@ -54,7 +54,7 @@ def default_dir() -> Path:
 
 # ---- (de)serialising the findings model ------------------------------------------------------------------
 def _finding_to_json(f: Finding) -> dict[str, Any]:
-    return asdict(f)  # dataclass fields only: the expression DAG (`_site`) is not stored
+    return asdict(f)  # plain data: `origin` names the site, which stays in the analysis
 
 
 def _finding_from_json(d: dict[str, Any], path: str) -> Finding:

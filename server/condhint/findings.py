@@ -6,29 +6,9 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from condhint.expr import Span
+from condhint.kinds import BY_CODE
 
-CODES = {
-    "CH001": ("not-analysed", None),
-    "CH101": ("avoidable-loss", "formula"),
-    "CH201": ("input-sensitivity", "inherent"),
-    "CH301": ("overflow-risk", "overflow"),
-    "CH302": ("domain-risk", "domain"),
-}
-CODE_OF_CATEGORY = {cat: code for code, (_, cat) in CODES.items() if cat}
 SEVERITY_RANK = {"info": 1, "warning": 2, "error": 3}
-
-RULE_HELP = {
-    "CH001": "condhint could not analyse this code (a syntax error, an unreadable file, a comment it does not "
-             "understand, or an expression over its time budget). The rest of the file is analysed.",
-    "CH101": "The formula loses digits to its own rounding at inputs on its range, although the result itself is "
-             "well-conditioned: an algebraically equivalent formula can be more accurate.",
-    "CH201": "The result is sensitive to its inputs (large condition number κ): errors already in the inputs are "
-             "magnified by κ. No rewrite of this formula helps; reduce the error of the inputs upstream.",
-    "CH301": "An intermediate value overflows or underflows on the range while the true result is an ordinary "
-             "number.",
-    "CH302": "Rounding pushes an argument outside a function's domain (or the declared range leaves it), so the "
-             "code returns nan or raises where the exact formula is defined.",
-}
 
 
 @dataclass
@@ -81,11 +61,11 @@ class Finding:
     result_uncertainty: float | None = None  # relative, from declared input uncertainties
     suppressed: bool = False
     cell: int | None = None  # notebooks: the 1-based cell the span's lines count within
-    site_key: str = field(default="", repr=False)  # structural key of the analysed expression
+    origin: str = field(default="", repr=False)  # the analysed site: see `engine.ModuleAnalysis.site_of`
 
     @property
     def name(self) -> str:
-        return CODES[self.code][0]
+        return BY_CODE[self.code].name
 
     @property
     def rank(self) -> int:

@@ -7,7 +7,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Callable
 
 from condhint.config import Config
 from condhint.engine import DEFAULT_CACHE, AnalysisCache
@@ -67,21 +66,15 @@ def _label(node: Node) -> str:
     return fn.label if fn else node.kind
 
 
-def describe(site: Site, node: Node, analysis: Analysis, cfg: Config, finding: Finding | None = None,
-             line_of: Callable[[int], int] | None = None) -> HoverFacts:
-    """Figures for `node` (the site's root or a subexpression) analysed over the site's ranges.
-
-    `line_of` maps lines of the analysed text to document lines when they differ.
-    """
-    def doc_line(line: int | None) -> int | None:
-        return None if line is None else (line_of(line) if line_of else line)
-
+def describe(site: Site, node: Node, analysis: Analysis, cfg: Config, finding: Finding | None = None
+             ) -> HoverFacts:
+    """Figures for `node` (the site's root or a subexpression) analysed over the site's ranges."""
     nodes = topological(node)
     limiting, limiting_line = None, None
     if analysis.culprit is not None and analysis.culprit < len(nodes):
         c = nodes[analysis.culprit]
         limiting = f"{_label(c)} `{' '.join(c.text.split())}`" if c.text else _label(c)
-        limiting_line = doc_line(c.span.line if c.span else None)
+        limiting_line = c.span.line if c.span else None
     inputs = []
     for name in analysis.names:
         lo, hi = analysis.bounds[name]
@@ -92,7 +85,7 @@ def describe(site: Site, node: Node, analysis: Analysis, cfg: Config, finding: F
         elif r is not None and r.uncertainty_abs is not None:
             unc = f"{r.uncertainty_abs:g}"
         inputs.append(InputFacts(name, lo, hi, analysis.sources.get(name, "default"),
-                                 doc_line(r.line if r is not None else None), analysis.kappa_i.get(name), unc))
+                                 r.line if r is not None else None, analysis.kappa_i.get(name), unc))
     return HoverFacts(
         text=" ".join(node.text.split()), kappa=analysis.kappa, kappa_median=analysis.kappa_median,
         kappa_at=analysis.kappa_at, predicted=analysis.predicted, measured=analysis.measured,

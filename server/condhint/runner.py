@@ -5,13 +5,14 @@ import fnmatch
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import TYPE_CHECKING, Callable, Iterable, Iterator
+from typing import TYPE_CHECKING, Iterable, Iterator
 
 from condhint.config import Config
-from condhint.engine import ModuleAnalysis, analyse_module
+from condhint.engine import analyse_module
 from condhint.expr import Span
 from condhint.findings import FileReport
-from condhint.messages import not_analysed
+from condhint.fixing import attach_fixes
+from condhint.site_findings import not_analysed
 from condhint.sourcefile import UnreadableFile, read_source
 
 if TYPE_CHECKING:
@@ -95,35 +96,12 @@ def check_target(target: Target, cfg: Config, fixes: bool = False, cache: "DiskC
         return rep
     analysis = analyse_module(src.text, target.shown, cfg)
     if fixes:
-        attach_fixes(analysis, cfg)
+        attach_fixes(analysis, cfg)  # inside the worker process, where the expression DAGs live
     return analysis.report
 
 
-def rewrite_search() -> Callable[..., Iterable] | None:
-    """`condhint.rewrites.fixes_for`, or None where the rewrites package is not installed."""
-    try:
-        from condhint.rewrites import fixes_for
-    except ImportError as exc:
-        if isinstance(exc, ModuleNotFoundError) and exc.name and not exc.name.startswith("condhint.rewrites"):
-            raise  # a dependency of the rewrites is missing: say so
-        return None
-    return fixes_for
-
-
-def attach_fixes(analysis: ModuleAnalysis, cfg: Config) -> None:
-    """Verified fixes on the findings (inside the worker process, where the expression DAGs live)."""
-    if rewrite_search() is None:
-        return
-    from condhint.rewrites import attach_fixes as attach
-
-    attach(analysis, cfg)
-
-
 def _check_in_worker(job: tuple[Target, Config, bool, "DiskCache | None"]) -> FileReport:
-    report = check_target(*job)
-    for f in [*report.findings, *report.suppressed]:
-        f.__dict__.pop("_site", None)  # the expression DAG stays in the worker
-    return report
+    return check_target(*job)
 
 
 @dataclass

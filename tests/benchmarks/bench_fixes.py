@@ -16,8 +16,10 @@ ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
 from condhint.config import Config  # noqa: E402
+from condhint.fixing import attach_fixes
 from condhint.engine import AnalysisCache, analyse_module  # noqa: E402
-from condhint.rewrites import FIXABLE, fixes_for  # noqa: E402
+from condhint.fixing import fixes_for  # noqa: E402
+from condhint.rewrites import FIXABLE  # noqa: E402
 from tests.benchmarks.numeric_module import numeric_module  # noqa: E402
 
 
@@ -44,7 +46,8 @@ def check_times(label: str, text: str) -> None:
     plain = analyse_module(text, "m.py", cfg, cache=AnalysisCache())
     t_plain = time.perf_counter() - t0
     t0 = time.perf_counter()
-    fixed = analyse_module(text, "m.py", cfg, cache=AnalysisCache(), fixes=True)
+    fixed = analyse_module(text, "m.py", cfg, cache=AnalysisCache())
+    attach_fixes(fixed, Config())
     t_fixes = time.perf_counter() - t0
     n = sum(1 for f in plain.report.findings if f.category in FIXABLE)
     offered = sum(1 for f in fixed.report.findings if f.fixes)

@@ -1,4 +1,5 @@
-"""Per-definition analysis (condhint.incremental) against whole-file analysis (condhint.engine)."""
+"""The editor's analysis (unit by unit, reusing unchanged units, tolerant of syntax errors) against the
+command line's whole-file analysis: both are `condhint.engine.analyse_module`."""
 from __future__ import annotations
 
 from dataclasses import replace
@@ -7,12 +8,19 @@ from pathlib import Path
 import pytest
 
 from condhint.config import Config
-from condhint.engine import AnalysisCache, analyse_module
-from condhint.incremental import Abandoned, PieceCache, analyse_document, blocks_of, split_lines
+from condhint.engine import Abandoned, AnalysisCache, UnitCache, analyse_module
+from condhint.reading.module_index import read_module
+from condhint.reading.source import split_lines
 from lsp_samples import GROWTH
 
 DEMO = Path(__file__).resolve().parents[2] / "docs" / "examples" / "marram"
 CFG = replace(Config(), kappa_formula=False)
+PieceCache = UnitCache
+
+
+def analyse_document(text, path, cfg, cache, units, abandoned=None):
+    """As the language server analyses a document."""
+    return analyse_module(text, path, cfg, cache, units=units, tolerant=True, abandoned=abandoned)
 
 
 def summary(findings):
@@ -49,7 +57,7 @@ def test_module_constants_and_globals_reach_every_definition():
 def test_an_edit_reanalyses_one_definition_and_one_expression():
     cache, pieces = AnalysisCache(), PieceCache()
     first = analyse_document(GROWTH, "g.py", CFG, cache, pieces)
-    assert first.analysed == len(first.pieces) == 5 and first.reused == 0
+    assert first.analysed == len(first.units) == 5 and first.reused == 0
     second = analyse_document(GROWTH.replace("1 + fraction", "1 + 3 * fraction"), "g.py", CFG, cache, pieces)
     assert (second.analysed, second.reused, second.site_misses) == (1, 4, 1)
     # Inserting lines above moves every definition below: their analyses are reused, positions follow.
@@ -78,16 +86,20 @@ def test_unparsable_module_level_code_is_left_out():
     assert [f.code for f in result.findings].count("CH001") == 1
 
 
-def test_blocks_without_a_syntax_tree():
+def test_units_of_a_text_with_and_without_a_syntax_error():
     lines = ["import math", "@decorate", "def f(x,", ") -> float:", "    return x", "# note", "X = 1",
              "class C:", "    pass"]
-    blocks, error = blocks_of("\n".join(lines), lines)
-    assert error is None  # this one parses: blocks come from the tree
-    assert [(b.start, b.end) for b in blocks] == [(2, 5), (8, 9)]
+    index, error = read_module("\n".join(lines))
+    assert error is None and index is not None
+    # the module-level code (decorators included), then each definition from its `def`/`class` line
+    assert [(u.name, u.start, u.end) for u in index.units] == [("<module>", 1, 9), ("f", 3, 5), ("C", 8, 9)]
     lines[4] = "    return x +"
-    blocks, error = blocks_of("\n".join(lines), lines)
-    assert error is not None
-    assert [(b.start, b.end) for b in blocks] == [(2, 6), (8, 9)]
+    assert read_module("\n".join(lines))[0] is None  # without tolerance a text that does not parse has no index
+    index, error = read_module("\n".join(lines), tolerant=True)
+    assert error is not None and error.span.line == 5 and index is not None
+    # the broken definition (with its decorator) is left out; the rest is read, line numbers kept
+    assert [(u.name, u.start, u.end) for u in index.units] == [("<module>", 1, 9), ("C", 8, 9)]
+    assert index.source.lines[6] == "X = 1" and index.source.lines[2] == ""
 
 
 def test_abandoned_between_definitions():
@@ -107,7 +119,7 @@ def test_node_at_finds_the_innermost_operation():
     lines = split_lines(GROWTH)
     line = next(i for i, s in enumerate(lines, 1) if "exp(rate * dt) - 1" in s)
     col = lines[line - 1].index("rate * dt") + 5  # on `*`
-    piece, site, node = result.node_at(line, col)
+    site, node = result.node_at(line, col)
     assert node.text == "rate * dt" and site.root.text == "exp(rate * dt) - 1"
-    assert piece.to_document(node.span).line == line
+    assert node.span.line == line
     assert result.node_at(1, 3) is None  # the docstring

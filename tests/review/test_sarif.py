@@ -151,9 +151,10 @@ def test_sarif_through_the_command_line_with_output_file(tmp_path: Path, capsys)
 
 def test_demo_fixes_from_the_rewrite_search_apply_cleanly():
     """With the rewrite search installed, every SARIF fix of the demo applies to the real file and parses."""
-    from condhint.runner import check_paths, rewrite_search
+    from condhint.fixing import rewrites
+    from condhint.runner import check_paths
 
-    if rewrite_search() is None:
+    if rewrites() is None:
         pytest.skip("the rewrites package is not installed")
     result = check_paths([str(MARRAM)], Config(), jobs=1, fixes=True)
     doc = document(result.reports, {})

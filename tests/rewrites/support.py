@@ -15,7 +15,8 @@ from condhint.config import Config
 from condhint.engine import ModuleAnalysis, analyse_module
 from condhint.expr import Node, topological
 from condhint.findings import Finding, Fix
-from condhint.rewrites import FIXABLE, fixes_for
+from condhint.fixing import fixes_for
+from condhint.rewrites import FIXABLE
 from condhint.rewrites.context import Context
 from condhint.rewrites.writer import Writer
 from condhint.rewrites.verify import Bench
@@ -60,7 +61,7 @@ def context_for(ma: ModuleAnalysis, text: str) -> tuple[Context, Node, Bench, Wr
     """A rule context for the node with source text `text` (real samples of its site's ranges)."""
     site, node = site_with(ma, text)
     bench = Bench(site, Config())
-    writer = Writer(ma, site, node)
+    writer = Writer(ma.index, ma.index.constants, site, node)
     return Context(bench, set(writer.names)), node, bench, writer, site
 
 

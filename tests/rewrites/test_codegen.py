@@ -9,6 +9,7 @@ import textwrap
 import pytest
 
 from condhint.config import Config
+from condhint.fixing import attach_fixes
 from condhint.engine import analyse_module
 from condhint.rewrites import apply_fixes
 from condhint.rewrites.codegen import Unspellable
@@ -80,10 +81,10 @@ def test_parentheses_are_minimal_and_correct(expr, fixed):
     src = f"from math import cos, exp, log, sin\ndef g(x):  # condhint: 1e-9 <= x <= 1e-3\n    return {expr}\n"
     ma = analysed(src)
     (finding,) = fixable(ma)
-    from condhint.rewrites import fixes_for
+    from condhint.fixing import fixes_for
 
     (fix, *_) = fixes_for(finding, ma, Config())
-    out = apply_fixes(ma.source.text, [fix])
+    out = apply_fixes(ma.index.text, [fix])
     line = out.splitlines()[-1].strip()
     assert line == f"return {fixed}", out
     ast.parse(out)
@@ -121,7 +122,8 @@ def test_the_fixed_file_parses_and_re_analyses_without_the_loss():
         def magnitude(x, y):  # condhint: 1e-200 <= x <= 1e200, 1e-200 <= y <= 1e200
             return sqrt(x * x + y * y)
         """)
-    ma = analyse_module(src, "t.py", Config(), cache=None, fixes=True)
+    ma = analyse_module(src, "t.py", Config(), cache=None)
+    attach_fixes(ma, Config())
     fixes = [fx[0] for fx in (f.fixes for f in fixable(ma)) if fx]
     assert len(fixes) == 2
     out = apply_fixes(src, fixes)
@@ -142,7 +144,7 @@ def test_a_name_rebound_before_the_edit_is_not_used_for_its_old_value():
     from condhint.rewrites.writer import visible_names
 
     site, node = site_with(ma, "d * s")
-    names = visible_names(ma, site, node)
+    names = visible_names(ma.index, ma.index.constants, site, node)
     assert sorted(names.values()) == ["d"]  # `s` no longer holds math.sqrt(x + 1) on the last line
     site, node = site_with(ma, "s - math.sqrt(x)")
-    assert sorted(visible_names(ma, site, node).values()) == ["s"]
+    assert sorted(visible_names(ma.index, ma.index.constants, site, node).values()) == ["s"]

@@ -12,7 +12,8 @@ import numpy as np
 import pytest
 
 from condhint.config import Config
-from condhint.rewrites import dag, fixes_for
+from condhint.fixing import fixes_for
+from condhint.rewrites import dag
 from condhint.rewrites.rules import BY_ID, RULES
 from tests.rewrites.support import analysed, context_for, fixable, fixes_of, worst_loss
 

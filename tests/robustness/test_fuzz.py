@@ -19,7 +19,9 @@ from hypothesis import strategies as st
 
 from condhint.config import SEVERITIES, Config
 from condhint.engine import analyse_module, check_source
-from condhint.findings import CODES, FileReport
+from condhint.findings import FileReport
+from condhint.fixing import attach_fixes
+from condhint.kinds import BY_CODE
 from condhint.numeric.backends import MP_BACKEND
 from condhint.numeric.evaluate import forward
 from condhint.numeric.sampling import sample
@@ -134,7 +136,7 @@ def _well_formed(rep: FileReport, text: str) -> None:
     assert rep.status in ("ok", "syntax-error")
     n_lines = text.count("\n") + 1
     for f in [*rep.findings, *rep.suppressed]:
-        assert f.code in CODES and f.severity in SEVERITIES
+        assert f.code in BY_CODE and f.severity in SEVERITIES
         assert 1 <= f.span.line <= f.span.end_line <= n_lines, (f.span, n_lines)
         assert f.span.col >= 0 and f.span.end_col >= 0
         for v in (f.digits_lost, f.predicted_digits_lost, f.measured_digits_lost):
@@ -194,10 +196,10 @@ def check_fixes_of(text: str, cfg: Config = Config(), points: int = 24, seed: in
     """Every fix offered for `text` re-parses and equals the original formula at random points (mpmath,
     60 digits); returns how many fixes were checked."""
     ma = analyse_module(text, "fixme.py", cfg, cache=None)
-    rewrites.attach_fixes(ma, cfg)
+    attach_fixes(ma, cfg)
     checked = 0
     for f in ma.report.findings:
-        site = getattr(f, "_site", None)
+        site = ma.site_of(f)
         for fix in f.fixes:
             new = rewrites.apply_fixes(text, [fix])
             ast.parse(new)  # re-parses

@@ -17,14 +17,16 @@ from condhint.atomic import write_bytes_atomic
 from condhint.commands.common import UsageError, add_config_options, config_from
 from condhint.config import Config
 from condhint.engine import analyse_module
-from condhint.findings import CODES, SEVERITY_RANK, Finding, Fix
-from condhint.rewrites import FIXABLE, apply_fixes, fixes_for
+from condhint.findings import SEVERITY_RANK, Finding, Fix
+from condhint.fixing import fixes_for
+from condhint.kinds import KINDS
+from condhint.rewrites import apply_fixes
 from condhint.rewrites.apply import select_fixes
 from condhint.runner import discover
 from condhint.sourcefile import SourceFile, UnreadableFile, read_source
 
 PASSES = 3
-FIXABLE_CODES = sorted(code for code, (_, cat) in CODES.items() if cat in FIXABLE)
+FIXABLE_CODES = sorted(k.code for k in KINDS if k.fixable)
 
 
 def register(sub: argparse._SubParsersAction) -> None:

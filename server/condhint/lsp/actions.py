@@ -14,8 +14,8 @@ from typing import Callable
 
 from condhint.expr import Span
 from condhint.findings import Finding, Fix
-from condhint.incremental import DocumentAnalysis, Piece
-from condhint.lsp.background import rewrites
+from condhint.engine import ModuleAnalysis
+from condhint.fixing import rewrites
 from condhint.lsp.textedits import LineFacts, Replacement, add_clause, comment_line_before, diff
 from condhint.site import Site
 
@@ -96,10 +96,10 @@ def ignore_plan(lines: list[str], facts: LineFacts, finding: Finding) -> Plan | 
 
 
 @lru_cache(maxsize=256)
-def _defs(piece_text: str) -> tuple[tuple[int, int, int, int], ...]:
-    """(def line, end line, first body line, body on the def line) of every function in a piece's text."""
+def _defs(text: str) -> tuple[tuple[int, int, int, int], ...]:
+    """(def line, end line, first body line, body on the def line) of every function in a text."""
     try:
-        tree = ast.parse(piece_text)
+        tree = ast.parse(text)
     except (SyntaxError, ValueError, RecursionError, MemoryError):
         return ()
     out = []
@@ -116,25 +116,23 @@ def default_inputs(names: list[str], bounds: dict[str, tuple[float, float]], sou
     return {n: bounds[n] for n in names if sources.get(n, "default") == "default" and _DECLARABLE.match(n)}
 
 
-def range_plan(lines: list[str], facts: LineFacts, piece: Piece, site: Site,
+def range_plan(lines: list[str], facts: LineFacts, text: str, site: Site,
                inputs: dict[str, tuple[float, float]], findings: list[Finding]) -> Plan | None:
     """Insert `# condhint: lo <= x <= hi` for inputs sampled on the default range (on the def line, or as
     the function's first line when the def line has another comment; above the statement at module level)."""
     if not inputs:
         return None
     clause = ", ".join(f"{lo:g} <= {name} <= {hi:g}" for name, (lo, hi) in inputs.items())
-    text = piece.analysis.source.text if piece.analysis.source is not None else ""
     line = site.statement_line
     enclosing = [d for d in _defs(text) if d[0] <= line <= d[1]]
     edit: Replacement | None
     if enclosing:
         def_line, _, body_line, same = max(enclosing, key=lambda d: d[0])
-        doc_def = def_line + piece.shift
-        edit = add_clause(lines, facts, doc_def, clause)
+        edit = add_clause(lines, facts, def_line, clause)
         if edit is None and not same:
-            edit = comment_line_before(lines, body_line + piece.shift, clause)
+            edit = comment_line_before(lines, body_line, clause)
     else:
-        edit = comment_line_before(lines, line + piece.shift, clause)
+        edit = comment_line_before(lines, line, clause)
     if edit is None:
         return None
     names = ", ".join(inputs)
@@ -145,39 +143,40 @@ def range_plan(lines: list[str], facts: LineFacts, piece: Piece, site: Site,
 
 
 # ---- all actions for a range ------------------------------------------------------------------------------------
-def findings_in(result: DocumentAnalysis, start: tuple[int, int], end: tuple[int, int],
+def findings_in(result: ModuleAnalysis, start: tuple[int, int], end: tuple[int, int],
                 fingerprints: set[str]) -> list[Finding]:
     return [f for f in result.findings if overlaps(f.span, start, end) or f.fingerprint() in fingerprints]
 
 
-def comment_plans(lines: list[str], result: DocumentAnalysis, findings: list[Finding],
+def comment_plans(lines: list[str], result: ModuleAnalysis, findings: list[Finding],
                   start: tuple[int, int]) -> list[Plan]:
     """Ignore actions for the findings, and range-comment actions for their sites (or the expression at the
     cursor) when those were analysed on the default range."""
     facts = LineFacts.of("\n".join(lines))
     plans: list[Plan] = []
-    ranged: dict[int, tuple[Piece, Site, list[Finding], dict[str, tuple[float, float]]]] = {}
+    ranged: dict[int, tuple[Site, list[Finding], dict[str, tuple[float, float]]]] = {}
     for f in findings:
         p = ignore_plan(lines, facts, f)
         if p is not None:
             plans.append(p)
-        site, piece = getattr(f, "_site", None), getattr(f, "_piece", None)
-        if site is None or piece is None:
+        site = result.site_of(f)
+        if site is None:
             continue
         names = list(f.inputs)
         inputs = default_inputs(names, {k: (v.low, v.high) for k, v in f.inputs.items()},
                                 {k: v.source for k, v in f.inputs.items()})
-        entry = ranged.setdefault(id(site), (piece, site, [], inputs))
-        entry[2].append(f)
+        entry = ranged.setdefault(id(site), (site, [], inputs))
+        entry[1].append(f)
     if not ranged:
         hit = result.node_at(*start)
         if hit is not None:
-            piece, site, _ = hit
-            a = piece.analysis.analyses.get(id(site))
+            site, _ = hit
+            a = result.analysis_of(site)
             if a is not None:
-                ranged[id(site)] = (piece, site, [], default_inputs(a.names, a.bounds, a.sources))
-    for piece, site, fs, inputs in ranged.values():
-        p = range_plan(lines, facts, piece, site, inputs, fs)
+                ranged[id(site)] = (site, [], default_inputs(a.names, a.bounds, a.sources))
+    text = result.index.text if result.index is not None else ""
+    for site, fs, inputs in ranged.values():
+        p = range_plan(lines, facts, text, site, inputs, fs)
         if p is not None and all(q.id != p.id for q in plans):
             plans.append(p)
     return plans

@@ -18,9 +18,8 @@ from typing import TYPE_CHECKING
 
 from lsprotocol import types
 
-from condhint.engine import DEFAULT_CACHE
+from condhint.engine import DEFAULT_CACHE, Abandoned, ModuleAnalysis, UnitCache, analyse_module
 from condhint.expr import topological
-from condhint.incremental import Abandoned, DocumentAnalysis, PieceCache, analyse_document
 from condhint.lsp.convert import Positions, to_lsp_diagnostic
 from condhint.lsp.state import DocumentState, relative_to
 
@@ -39,7 +38,7 @@ class Analyser:
     def __init__(self, ls: "CondhintServer") -> None:
         self.ls = ls
         self.pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="condhint-analysis")
-        self.pieces = PieceCache()
+        self.units = UnitCache()
         self._failed: set[str] = set()
         self._collect: asyncio.TimerHandle | None = None
         self._kept = 0  # objects the last full collection kept (then froze)
@@ -64,7 +63,7 @@ class Analyser:
         if all(s.pending is None or s.pending.done() for s in self.ls.docs):
             self.ls.background.idle.set()
 
-    async def result(self, state: DocumentState, timeout: float = 10.0) -> DocumentAnalysis | None:
+    async def result(self, state: DocumentState, timeout: float = 10.0) -> ModuleAnalysis | None:
         """The analysis of the document's current text: waits for it (starting it at once if nothing is
         scheduled); None after `timeout` seconds."""
         loop = asyncio.get_running_loop()
@@ -103,7 +102,8 @@ class Analyser:
             state.progress = (done, total)
 
         state.progress = (0, 0)
-        job = partial(analyse_document, text, state.path, cfg, DEFAULT_CACHE, self.pieces, abandoned, progress)
+        job = partial(analyse_module, text, state.path, cfg, DEFAULT_CACHE, units=self.units, tolerant=True,
+                      abandoned=abandoned, progress=progress)
         fut = asyncio.get_running_loop().run_in_executor(self.pool, job)
         try:
             result = await self._with_progress(state, fut)
@@ -123,7 +123,7 @@ class Analyser:
         state.result, state.result_version, state.result_lines = result, generation, lines
         state.result_doc_version = version
         state.diagnostics = None
-        log.info("analysed %s v%s: %d findings, %d pieces analysed, %d reused, %d expressions, %.3f s",
+        log.info("analysed %s v%s: %d findings, %d units analysed, %d reused, %d expressions, %.3f s",
                  Path(state.path).name, version, len(result.findings), result.analysed, result.reused,
                  result.site_misses, result.seconds)
         if state.ready is not None and not state.ready.done():
@@ -172,7 +172,7 @@ class Analyser:
         log.info("full garbage collection: %d objects freed, %d kept, %.0f ms", freed, self._kept,
                  1000 * (time.perf_counter() - t0))
 
-    async def _with_progress(self, state: DocumentState, fut: asyncio.Future) -> DocumentAnalysis:
+    async def _with_progress(self, state: DocumentState, fut: asyncio.Future) -> ModuleAnalysis:
         done, _ = await asyncio.wait({fut}, timeout=PROGRESS_AFTER)
         if done or not self.ls.can_report_progress:
             return await fut
@@ -221,16 +221,16 @@ class Analyser:
         formulas = self.ls.settings.config.kappa_formula
         fixes = self.ls.settings.config.fixes
         assert state.result is not None
-        for f in state.result.findings:
-            site = getattr(f, "_site", None)
-            raw = getattr(f, "_raw", f)
+        result = state.result
+        for f in result.findings:
+            site = result.site_of(f)
             if site is None:
                 continue
             if formulas:
-                node = next((n for n in topological(site.root) if n.span == raw.span), site.root)
+                node = next((n for n in topological(site.root) if n.span == f.span), site.root)
                 bg.formula_later(site, node, cfg)
             if fixes:
-                bg.fixes_later(f, cfg)
+                bg.fixes_later(f, result, cfg)
 
     def shutdown(self) -> None:
         self.pool.shutdown(wait=False, cancel_futures=True)

@@ -2,7 +2,7 @@
 
 sympy cannot be interrupted inside a thread, so κ formulas run in the core's worker process
 (`condhint.budget`), which is killed and replaced when a formula overruns its budget. Rewrites come from
-`condhint.rewrites` when that package is installed (imported lazily: fixes appear as soon as it exists).
+`condhint.fixing` when the rewrites package is installed.
 Each kind has one thread; a request from a hover or a code action goes before queued background jobs.
 """
 from __future__ import annotations
@@ -16,23 +16,13 @@ from types import ModuleType
 from typing import Any, Callable
 
 from condhint.config import Config
-from condhint.engine import AnalysisCache
+from condhint.engine import AnalysisCache, ModuleAnalysis
 from condhint.expr import Node
 from condhint.findings import Finding, Fix
+from condhint.fixing import fixes_for, rewrites
 from condhint.site import Site
 
 log = logging.getLogger(__name__)
-
-
-def rewrites() -> ModuleType | None:
-    """The rewrite engine, if it is installed and offers `fixes_for` and `apply_fixes`."""
-    try:
-        module = importlib.import_module("condhint.rewrites")
-    except ImportError:
-        return None
-    if not (callable(getattr(module, "fixes_for", None)) and callable(getattr(module, "apply_fixes", None))):
-        return None
-    return module
 
 
 def formula_key(site: Site, node: Node) -> str:
@@ -41,10 +31,9 @@ def formula_key(site: Site, node: Node) -> str:
 
 
 def fix_key(finding: Finding) -> str:
-    piece = getattr(finding, "_piece", None)
-    raw = getattr(finding, "_raw", finding)
-    s = raw.span
-    return f"{piece.key if piece is not None else ''}\0{raw.code}\0{s.line}:{s.col}:{s.end_line}:{s.end_col}"
+    """Fixes depend on the finding's unit (its key holds the unit's text, place and context) and its range."""
+    s = finding.span
+    return f"{finding.origin}\0{finding.code}\0{s.line}:{s.col}:{s.end_line}:{s.end_col}"
 
 
 class Jobs:
@@ -166,15 +155,9 @@ class Background:
 
     # ---- rewrites -------------------------------------------------------------------------------------------
     @staticmethod
-    def _fix_job(finding: Finding, cfg: Config) -> Callable[[], list[Fix]]:
+    def _fix_job(finding: Finding, ma: ModuleAnalysis, cfg: Config) -> Callable[[], list[Fix]]:
         def job() -> list[Fix]:
-            engine = rewrites()
-            piece = getattr(finding, "_piece", None)
-            raw = getattr(finding, "_raw", None)
-            if engine is None or piece is None or raw is None:
-                return []
-            found = engine.fixes_for(raw, piece.analysis, cfg) or []
-            return [replace(f, span=piece.to_document(f.span)) for f in found]
+            return fixes_for(finding, ma, cfg)
 
         return job
 
@@ -187,13 +170,13 @@ class Background:
         ready, value = self.fixes.get(fix_key(finding))
         return ready, list(value or [])
 
-    def want_fixes(self, finding: Finding, cfg: Config) -> asyncio.Future:
-        return self.fixes.want(fix_key(finding), self._fix_job(finding, cfg))
+    def want_fixes(self, finding: Finding, ma: ModuleAnalysis, cfg: Config) -> asyncio.Future:
+        return self.fixes.want(fix_key(finding), self._fix_job(finding, ma, cfg))
 
-    def fixes_later(self, finding: Finding, cfg: Config) -> None:
+    def fixes_later(self, finding: Finding, ma: ModuleAnalysis, cfg: Config) -> None:
         if finding.fixes or finding.code == "CH001" or rewrites() is None:
             return
-        self.fixes.later(fix_key(finding), self._fix_job(finding, cfg))
+        self.fixes.later(fix_key(finding), self._fix_job(finding, ma, cfg))
 
     def shutdown(self) -> None:
         self.formulas.shutdown()

@@ -13,7 +13,7 @@ from pygls.uris import from_fs_path, to_fs_path
 
 from condhint.hover import analyse_node, describe, markdown
 from condhint.lsp import actions
-from condhint.lsp.background import rewrites
+from condhint.fixing import rewrites
 from condhint.lsp.convert import (Positions, result_id, to_lsp_hover, to_lsp_inlay_hint, to_lsp_text_edit,
                                   to_lsp_workspace_edit)
 from condhint.lsp.settings import SECTION, resolve, section_of
@@ -169,23 +169,21 @@ async def hover(ls: "CondhintServer", params: types.HoverParams) -> types.Hover 
     hit = result.node_at(*pos.from_client(params.position))
     if hit is None:
         return None
-    piece, site, node = hit
+    site, node = hit
     cfg = _cfg(ls, state)
-    analysis = piece.analysis.analyses.get(id(site)) if node is site.root else None
+    analysis = result.analysis_of(site) if node is site.root else None
     if analysis is None:
         loop = asyncio.get_running_loop()
         analysis = await loop.run_in_executor(ls.background.hover_pool, analyse_node, site, node, cfg,
                                               ls.background.hover_cache)
-    own = [f for f in piece.findings if getattr(f, "_site", None) is site]
-    finding = next((f for f in own if getattr(f, "_raw", f).span == node.span), None)
-    around = next((f for f in own if getattr(f, "_raw", f).span.contains(node.span)), None) if finding is None else None
-    facts = describe(site, node, analysis, cfg, finding or around,
-                     line_of=lambda line: line + piece.shift if line > piece.head else None)
+    own = [f for f in result.findings if result.site_of(f) is site]
+    finding = next((f for f in own if f.span == node.span), None)
+    around = next((f for f in own if f.span.contains(node.span)), None) if finding is None else None
+    facts = describe(site, node, analysis, cfg, finding or around)
     facts.finding_around = around is not None
     if ls.settings.config.kappa_formula:
         facts.formula_state, facts.formula = await _formula(ls, site, node, cfg)
-    span = piece.to_document(node.span) if node.span is not None else None
-    return to_lsp_hover(markdown(facts), span, pos, ls.markdown_hover)
+    return to_lsp_hover(markdown(facts), node.span, pos, ls.markdown_hover)
 
 
 async def _formula(ls: "CondhintServer", site, node, cfg) -> tuple[str, str | None]:  # noqa: ANN001
@@ -231,7 +229,7 @@ async def code_actions(ls: "CondhintServer", params: types.CodeActionParams) -> 
     fixing = ls.settings.config.fixes and rewrites() is not None
     if fixing and actions.wanted(actions.QUICKFIX, only):
         for f in findings:
-            plans += actions.fix_plans(state.text, f, await _fixes(ls, f, cfg))
+            plans += actions.fix_plans(state.text, f, await _fixes(ls, result, f, cfg))
     if fixing and actions.wanted(actions.FIX_ALL, only):
         chosen = []
         for f in result.findings:
@@ -260,12 +258,12 @@ async def code_actions(ls: "CondhintServer", params: types.CodeActionParams) -> 
     return out
 
 
-async def _fixes(ls: "CondhintServer", finding, cfg) -> list:  # noqa: ANN001
+async def _fixes(ls: "CondhintServer", result, finding, cfg) -> list:  # noqa: ANN001
     ready, fixes = ls.background.fixes_of(finding)
     if ready:
         return fixes
     try:
-        await asyncio.wait_for(asyncio.shield(ls.background.want_fixes(finding, cfg)), FIX_WAIT)
+        await asyncio.wait_for(asyncio.shield(ls.background.want_fixes(finding, result, cfg)), FIX_WAIT)
     except asyncio.TimeoutError:
         return []  # still searching: offered on a later request
     return ls.background.fixes_of(finding)[1]
@@ -290,11 +288,11 @@ def resolve_code_action(ls: "CondhintServer", action: types.CodeAction) -> types
 
 # ---- commands ----------------------------------------------------------------------------------------------
 def statistics(ls, uri: str) -> dict[str, Any]:  # noqa: ANN001 - pygls resolves command annotations at run time
-    """How the last analysis of a document went (pieces analysed and reused, expressions analysed)."""
+    """How the last analysis of a document went (units analysed and reused, expressions analysed)."""
     state = ls.docs.get(uri)
     if state is None or state.result is None:
         return {}
     r = state.result
-    return {"version": state.result_doc_version, "findings": len(r.findings), "pieces": len(r.pieces),
+    return {"version": state.result_doc_version, "findings": len(r.findings), "pieces": len(r.units),
             "analysed": r.analysed, "reused": r.reused, "expressions_analysed": r.site_misses,
             "seconds": round(r.seconds, 4), "status": r.status}

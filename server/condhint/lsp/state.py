@@ -6,7 +6,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from condhint.incremental import DocumentAnalysis, split_lines
+from condhint.engine import ModuleAnalysis
+from condhint.reading.source import split_lines
 
 
 @dataclass
@@ -16,14 +17,14 @@ class DocumentState:
     version: int | None
     text: str
     lines: list[str] = field(default_factory=list)
-    result: DocumentAnalysis | None = None  # analysis of generation `result_version`
+    result: ModuleAnalysis | None = None  # analysis of generation `result_version`
     result_version: int = -1
     result_doc_version: int | None = None  # the client's version number of that text
     result_lines: list[str] = field(default_factory=list)  # the lines `result` was computed on
     diagnostics: list[Any] | None = None  # the result as LSP diagnostics (converted once)
     pending: asyncio.Task | None = None  # debounce + analysis of the current version
     ready: asyncio.Future | None = None  # resolved with the analysis of the current version
-    progress: tuple[int, int] = (0, 0)  # pieces done / total of the running analysis
+    progress: tuple[int, int] = (0, 0)  # units done / total of the running analysis
     closed: bool = False
     generation: int = 0  # bumped on every change (also without a version) and on settings changes
     plans: dict[str, Any] = field(default_factory=dict)  # code actions offered for this generation, by id

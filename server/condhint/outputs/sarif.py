@@ -12,21 +12,12 @@ from urllib.parse import quote
 
 from condhint import __version__
 from condhint.expr import Span
-from condhint.findings import CODES, RULE_HELP, FileReport, Finding, Fix
+from condhint.findings import FileReport, Finding, Fix
+from condhint.kinds import KINDS
 from condhint.outputs.json_out import _clean
 
 SCHEMA = "https://docs.oasis-open.org/sarif/sarif/v2.1.0/errata01/os/schemas/sarif-schema-2.1.0.json"
 LEVELS = {"error": "error", "warning": "warning", "info": "note"}
-# A rule's default level: what a finding of that kind usually is (the actual level follows digits lost).
-DEFAULT_LEVELS = {"CH001": "note", "CH101": "warning", "CH201": "warning", "CH301": "warning",
-                  "CH302": "warning"}
-SHORT = {
-    "CH001": "Code that could not be analysed",
-    "CH101": "Digits lost to the formula's own rounding (avoidable)",
-    "CH201": "Result sensitive to errors in its inputs (inherent)",
-    "CH301": "Intermediate overflow or underflow",
-    "CH302": "Rounding leaves a function's domain",
-}
 FINGERPRINT = "condhint/v1"
 
 
@@ -50,14 +41,15 @@ def region(span: Span, snippet: str | None = None) -> dict[str, Any]:
 
 def rules() -> list[dict[str, Any]]:
     out = []
-    for code, (name, category) in CODES.items():
+    for k in KINDS:
         out.append({
-            "id": code, "name": name,
-            "shortDescription": {"text": SHORT.get(code, name)},
-            "fullDescription": {"text": RULE_HELP[code]},
-            "help": {"text": RULE_HELP[code] + " Figures are estimates over sampled inputs, not proofs."},
-            "defaultConfiguration": {"level": DEFAULT_LEVELS.get(code, "warning")},
-            "properties": {"category": category, "tags": ["numerics", "floating-point"]},
+            "id": k.code, "name": k.name,
+            "shortDescription": {"text": k.title},
+            "fullDescription": {"text": k.help},
+            "help": {"text": k.help + " Figures are estimates over sampled inputs, not proofs."},
+            # a rule's default level: what a finding of that kind usually is (the actual level follows digits)
+            "defaultConfiguration": {"level": "warning" if k.category else "note"},
+            "properties": {"category": k.category, "tags": ["numerics", "floating-point"]},
         })
     return out
 

@@ -10,6 +10,11 @@ from condhint.expr import Span
 _NEWLINE = re.compile(r"\r\n|\r|\n")
 
 
+def split_lines(text: str) -> list[str]:
+    """The lines of a text as Python counts them (any of \\r\\n, \\r, \\n ends a line)."""
+    return _NEWLINE.split(text)
+
+
 class Source:
     def __init__(self, text: str) -> None:
         self.text = text

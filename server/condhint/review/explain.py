@@ -89,17 +89,17 @@ def locate(ma: ModuleAnalysis, line: int, col: int | None) -> tuple[Site, Findin
             return span.line <= line <= span.end_line
         return (span.line, span.col) <= (line, col) <= (span.end_line, span.end_col)
 
-    findings = [f for f in [*ma.report.findings, *ma.report.suppressed] if hasattr(f, "_site")]
+    findings = [f for f in [*ma.report.findings, *ma.report.suppressed] if ma.site_of(f) is not None]
     hits = [f for f in findings if covers(f.span)]
     if hits:
         f = max(hits, key=lambda f: (f.digits_lost or 0))
-        return f._site, f  # type: ignore[attr-defined]
+        return ma.site_of(f), f  # type: ignore[return-value]
     sites = [s for s in ma.sites if covers(s.span)]
     if not sites:
         where = f"line {line}" + ("" if col is None else f", column {col + 1}")
         raise NothingThere(f"no floating-point expression condhint analyses at {where}")
     site = min(sites, key=lambda s: ((s.span.end_line - s.span.line) * 10_000 + s.span.end_col - s.span.col))
-    owner = next((f for f in findings if f._site is site), None)  # type: ignore[attr-defined]
+    owner = next((f for f in findings if ma.site_of(f) is site), None)
     return site, owner
 
 
@@ -202,12 +202,11 @@ def rewrite_candidates(finding: Finding | None, ma: ModuleAnalysis, cfg: Config)
     """Verified fixes from the rewrite search, when that package is installed."""
     if finding is None:
         return [], ""
-    from condhint.runner import rewrite_search
+    from condhint.fixing import fixes_for, rewrites
 
-    fixes_for = rewrite_search()
-    if fixes_for is None:
+    if rewrites() is None:
         return [], "the rewrite search is not available in this installation"
-    return list(fixes_for(finding, ma, cfg)), ""
+    return fixes_for(finding, ma, cfg), ""
 
 
 def explain(text: str, path: str, line: int, col: int | None, cfg: Config, tries: tuple[str, ...] = (),

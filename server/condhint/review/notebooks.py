@@ -15,10 +15,11 @@ from pathlib import Path
 from typing import Any
 
 from condhint.config import Config
-from condhint.engine import analyse_module, parse
+from condhint.engine import analyse_module
 from condhint.expr import Span
 from condhint.findings import SEVERITY_RANK, FileReport, Finding
-from condhint.messages import not_analysed
+from condhint.reading.module_index import parse
+from condhint.site_findings import not_analysed
 
 # Cell magics whose body is ordinary Python: only their first line is dropped.
 PYTHON_CELL_MAGICS = {"time", "timeit", "capture", "prun"}
@@ -102,10 +103,7 @@ def _relocate(f: Finding, where: list[tuple[int, int, int]], path: str) -> Findi
     for ln, note in f.related:
         c, rl = locate(ln)
         related.append((rl, note if c == cell else f"{note} (cell {c})"))
-    out = replace(f, path=path, span=span, related=related, cell=cell)
-    if hasattr(f, "_site"):
-        out._site = f._site  # type: ignore[attr-defined]
-    return out
+    return replace(f, path=path, span=span, related=related, cell=cell)
 
 
 def join_cells(cells: list[CodeCell], shown: str) -> tuple[str, list[tuple[int, int, int]], list[Finding]]:
@@ -117,10 +115,10 @@ def join_cells(cells: list[CodeCell], shown: str) -> tuple[str, list[tuple[int, 
     for cell in cells:
         if not cell.code.strip():
             continue
-        _, err = parse(cell.code)
-        if err is not None:
-            err.path = shown
-            bad.append(replace(err, cell=cell.number))
+        _, problem = parse(cell.code)
+        if problem is not None:
+            why = f"{problem.message}; the file is not analysed until it parses" if problem.syntax else problem.message
+            bad.append(replace(not_analysed(shown, problem.span, why), cell=cell.number))
             continue
         code = cell.code if cell.code.endswith("\n") else cell.code + "\n"
         count = code.count("\n")

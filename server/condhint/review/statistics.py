@@ -4,7 +4,8 @@ from __future__ import annotations
 from collections import defaultdict
 from dataclasses import dataclass, field
 
-from condhint.findings import CODES, SEVERITY_RANK, FileReport
+from condhint.findings import SEVERITY_RANK, FileReport
+from condhint.kinds import BY_CODE
 
 
 @dataclass
@@ -21,7 +22,7 @@ class CodeStats:
 
     @property
     def name(self) -> str:
-        return CODES[self.code][0]
+        return BY_CODE[self.code].name
 
 
 def by_code(reports: list[FileReport], min_severity: str = "info") -> list[CodeStats]:

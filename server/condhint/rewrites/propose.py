@@ -15,7 +15,8 @@ from typing import TYPE_CHECKING, Callable, Iterator
 
 from condhint.config import Config
 from condhint.expr import SELECT, Node, Span, topological
-from condhint.findings import Finding, Fix
+from condhint.findings import FileReport, Finding, Fix
+from condhint.numeric.analysis import Analysis
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
 from condhint.rewrites import codegen, dag, search, sym
 from condhint.rewrites.context import Context
@@ -26,7 +27,7 @@ from condhint.rewrites.writer import Writer
 from condhint.site import Site
 
 if TYPE_CHECKING:
-    from condhint.engine import AnalysisCache, ModuleAnalysis
+    from condhint.reading.module_index import ModuleIndex
 
 ANCESTORS = 4
 SECONDS_PER_FINDING = 2.0
@@ -127,19 +128,30 @@ def _searched(tgts: list[Node], ctx_for, deadline: Deadline) -> Iterator[Proposa
             yield Proposal(found.rule, found.title, t, found.replacement, 4, base + 10, True)
 
 
-def fixes_for(finding: Finding, ma: "ModuleAnalysis", cfg: Config, cache: "AnalysisCache | None" = None,
-              seconds: float = SECONDS_PER_FINDING) -> list[Fix]:
+@dataclass(frozen=True)
+class Subject:
+    """What the rewrites are given about one finding: its site and analysis, the module index it was read
+    from (with the module constants its nodes share), and a way to analyse a patched text again."""
+
+    finding: Finding
+    site: Site
+    analysis: Analysis | None
+    index: "ModuleIndex"
+    constants: dict[str, Node]
+    reanalyse: Callable[[str], FileReport]
+
+
+def fixes_for(subject: Subject, cfg: Config, seconds: float = SECONDS_PER_FINDING) -> list[Fix]:
     """Verified fixes for one finding, best first (empty when none is verified)."""
-    site: Site | None = getattr(finding, "_site", None)
-    if site is None or finding.category not in FIXABLE or ma.source is None or ma.walker is None:
+    finding, site, analysis = subject.finding, subject.site, subject.analysis
+    if finding.category not in FIXABLE:
         return []
-    analysis = ma.analyses.get(id(site))
     if analysis is not None and analysis.category == "domain-range":
         return []  # the declared range itself leaves the domain: no rewrite changes that
     deadline = Deadline(seconds)
     nodes = topological(site.root)
     culprit = nodes[analysis.culprit] if analysis is not None and analysis.culprit is not None else None
-    source = ma.source
+    source = subject.index.source
 
     def replaceable(n: Node) -> bool:
         return n.span is not None and bool(n.text) and source.segment(n.span) == n.text and \
@@ -157,7 +169,7 @@ def fixes_for(finding: Finding, ma: "ModuleAnalysis", cfg: Config, cache: "Analy
 
     def writer(t: Node) -> Writer:
         if id(t) not in writers:
-            writers[id(t)] = Writer(ma, site, t)
+            writers[id(t)] = Writer(subject.index, subject.constants, site, t)
         return writers[id(t)]
 
     def ctx_for(t: Node) -> Context:
@@ -188,14 +200,7 @@ def fixes_for(finding: Finding, ma: "ModuleAnalysis", cfg: Config, cache: "Analy
                 verified.append(Verified(p.rule, title, p.target, p.replacement, text, imports, span, ev,
                                          p.cost, p.order))
         verified.sort(key=Verified.rank)
-        fixes = rechecked([v.fix() for v in verified], finding, ma, cfg, cache)
+        fixes = rechecked([v.fix() for v in verified], finding, subject.index, subject.reanalyse)
         if fixes:
             return fixes
     return []
-
-
-def attach_fixes(ma: "ModuleAnalysis", cfg: Config, cache: "AnalysisCache | None" = None) -> None:
-    """Give every formula, overflow and domain finding of the module its verified fixes."""
-    for f in ma.report.findings:
-        if f.category in FIXABLE and getattr(f, "_site", None) is not None:
-            f.fixes = fixes_for(f, ma, cfg, cache)

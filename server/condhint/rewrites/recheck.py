@@ -8,17 +8,16 @@ from __future__ import annotations
 
 import ast
 from collections import Counter
-from dataclasses import replace
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Callable
 
-from condhint.config import Config
-from condhint.findings import Finding, Fix
+from condhint.findings import FileReport, Finding, Fix
+from condhint.kinds import FIXABLE_CATEGORIES
 from condhint.rewrites.apply import apply_fixes
 
 if TYPE_CHECKING:
-    from condhint.engine import AnalysisCache, ModuleAnalysis
+    from condhint.reading.module_index import ModuleIndex
 
-FIXABLE = ("formula", "overflow", "domain")
+FIXABLE = FIXABLE_CATEGORIES
 RECHECKED = 3  # how many of the best candidates are re-analysed at most
 _DEFS = (ast.FunctionDef, ast.AsyncFunctionDef, ast.ClassDef)
 
@@ -74,21 +73,14 @@ def focus(text: str, where: tuple[str, int] | None) -> str:
     return "".join(out)
 
 
-def rechecked(fixes: list[Fix], finding: Finding, ma: "ModuleAnalysis", cfg: Config,
-              cache: "AnalysisCache | None") -> list[Fix]:
+def rechecked(fixes: list[Fix], finding: Finding, index: "ModuleIndex",
+              reanalyse: Callable[[str], FileReport]) -> list[Fix]:
     """The fixes (at most `RECHECKED`, in order) whose patched code re-analyses without `finding` and
     without any new fixable finding."""
-    from condhint.engine import DEFAULT_CACHE, analyse_module
-
     if not fixes:
         return []
-    assert ma.source is not None and ma.walker is not None
-    cache = cache if cache is not None else DEFAULT_CACHE
-    quiet = replace(cfg, kappa_formula=False)
-    where = enclosing(ma.walker.tree, finding.span.line)
-    original = focus(ma.source.text, where)
-    base = ma if original == ma.source.text else analyse_module(original, ma.report.path, quiet, cache)
-    before = fixable_findings(base.report.findings)
+    original = focus(index.text, enclosing(index.tree, finding.span.line))
+    before = fixable_findings(reanalyse(original).findings)
     (own,) = fixable_findings([finding]) or [None]
     out: list[Fix] = []
     for fix in fixes[:RECHECKED]:
@@ -96,10 +88,10 @@ def rechecked(fixes: list[Fix], finding: Finding, ma: "ModuleAnalysis", cfg: Con
             patched = apply_fixes(original, [fix])
         except ValueError:
             continue
-        again = analyse_module(patched, ma.report.path, quiet, cache)
-        if again.report.status != "ok":
+        again = reanalyse(patched)
+        if again.status != "ok":
             continue
-        after = fixable_findings(again.report.findings)
+        after = fixable_findings(again.findings)
         if after - before or after[own] >= before[own]:
             continue
         out.append(fix)

@@ -14,20 +14,20 @@ from condhint.rewrites import codegen
 from condhint.site import Site
 
 if TYPE_CHECKING:
-    from condhint.engine import ModuleAnalysis
+    from condhint.reading.module_index import ModuleIndex
 
 
 class Writer:
     """Code for candidates replacing one target, in the file's style and with the names visible there."""
 
-    def __init__(self, ma: "ModuleAnalysis", site: Site, target: Node) -> None:
-        assert ma.source is not None and ma.walker is not None and target.span is not None
-        self.source = ma.source
-        self.tree = ma.walker.tree
+    def __init__(self, index: "ModuleIndex", constants: dict[str, Node], site: Site, target: Node) -> None:
+        assert target.span is not None
+        self.source = index.source
+        self.tree = index.tree
         self.target = target
-        self.style = _style(ma.walker.tree)
+        self.style = _style(index.tree)
         self.site_nodes = topological(site.root)
-        self.names = visible_names(ma, site, target)
+        self.names = visible_names(index, constants, site, target)
 
     def reuse(self, node: Node) -> str | None:
         if node.kind == INPUT or node.span is None or not node.text or node is self.target:
@@ -73,17 +73,18 @@ class Writer:
         return found if found is not None else codegen.precedence(self.target.text)
 
 
-def visible_names(ma: "ModuleAnalysis", site: Site, target: Node) -> dict[int, str]:
-    """Nodes bound to a name on an earlier line that still holds it where `target` is, and module constants."""
-    assert target.span is not None and ma.walker is not None
+def visible_names(index: "ModuleIndex", constants: dict[str, Node], site: Site, target: Node) -> dict[int, str]:
+    """Nodes bound to a name on an earlier line that still holds it where `target` is, and module constants
+    (`constants`: the ones the site's nodes share)."""
+    assert target.span is not None
     line = target.span.line
-    stores = _stores(ma.walker.tree)
+    stores = _stores(index.tree)
     out: dict[int, str] = {}
     for key, b in site.bindings_by_node.items():
         if b.line < line and not any(b.line < ln < line for ln in stores.get(b.name, ())) and not (
                 b.span.line <= line <= b.span.end_line):
             out[key] = b.name
-    for name, node in ma.walker.module_constants.items():
+    for name, node in constants.items():
         if node.span is not None and node.span.line != line:
             out.setdefault(id(node), name)
     out.pop(id(target), None)

@@ -1,0 +1,50 @@
+"""The one step that gives findings their verified fixes, called by `check`, `fix`, `explain` and the
+language server. The core (`engine`) never imports the rewrites; this module hands them what they need: the
+finding's site and analysis, the module index, and a way to analyse a patched text again."""
+from __future__ import annotations
+
+import types
+from dataclasses import replace
+
+from condhint.config import Config
+from condhint.engine import DEFAULT_CACHE, AnalysisCache, ModuleAnalysis, UnitCache, analyse_module
+from condhint.findings import FileReport, Finding, Fix
+
+
+def rewrites() -> types.ModuleType | None:
+    """The rewrites package, or None where it is not installed."""
+    try:
+        import condhint.rewrites as package
+    except ImportError as exc:
+        if isinstance(exc, ModuleNotFoundError) and exc.name and not exc.name.startswith("condhint.rewrites"):
+            raise  # a dependency of the rewrites is missing: say so
+        return None
+    return package
+
+
+def fixes_for(finding: Finding, ma: ModuleAnalysis, cfg: Config, cache: AnalysisCache | None = None,
+              seconds: float | None = None) -> list[Fix]:
+    """Verified fixes for one finding of `ma`, best first (empty when none is verified)."""
+    package = rewrites()
+    site = ma.site_of(finding)
+    unit = next((u for u in ma.units if u.key == finding.origin.rpartition("#")[0]), None)
+    if package is None or site is None or unit is None or ma.index is None:
+        return []
+    quiet = replace(cfg, kappa_formula=False)
+    units = UnitCache(64)
+
+    def reanalyse(text: str) -> FileReport:
+        return analyse_module(text, ma.report.path, quiet, cache or DEFAULT_CACHE, units=units).report
+
+    subject = package.Subject(finding, site, unit.analyses.get(id(site)), ma.index, unit.constants, reanalyse)
+    return package.fixes_for(subject, cfg) if seconds is None else package.fixes_for(subject, cfg, seconds)
+
+
+def attach_fixes(ma: ModuleAnalysis, cfg: Config, cache: AnalysisCache | None = None) -> None:
+    """Give every fixable finding of the module its verified fixes."""
+    package = rewrites()
+    if package is None:
+        return
+    for f in ma.report.findings:
+        if f.category in package.FIXABLE:
+            f.fixes = fixes_for(f, ma, cfg, cache)

@@ -1,0 +1,63 @@
+"""Calls: known functions become operations; other calls are opaque inputs (their arguments are still read)."""
+from __future__ import annotations
+
+import ast
+from typing import TYPE_CHECKING
+
+from condhint.expr import CONST, SELECT, Node
+from condhint.numeric.functions import FUNCTIONS
+from condhint.reading.names import INT_BUILTINS, literal_number
+
+if TYPE_CHECKING:
+    from condhint.reading.expressions import Converter
+
+_KEYWORDS = ("dtype", "out", "where")  # keywords that do not change the value of an elementwise call
+
+
+def convert_call(conv: "Converter", e: ast.Call) -> Node | None:
+    names, source = conv.w.names, conv.w.source
+    if names.not_binary64(e):
+        return None  # a sympy or mpmath object: the expression is not binary64 arithmetic
+    if names.makes_number(e):
+        exact = literal_number(e.args[0]) or ""
+        span = source.span(e)
+        return Node(CONST, value=float(exact), exact=exact, span=span, text=source.segment(span))
+    fid = names.function(e.func)
+    if isinstance(e.func, ast.Name) and e.func.id in INT_BUILTINS and e.func.id not in conv.env:
+        return conv.opaque(e, True)
+    if fid is None or any(isinstance(a, ast.Starred) for a in e.args) or any(
+            k.arg not in _KEYWORDS for k in e.keywords):
+        return conv.opaque(e)
+    if fid == "where":  # np.where(cond, a, b): piecewise, like `a if cond else b`
+        return _where(conv, e)
+    nodes = [conv.convert(a) for a in e.args]
+    if not nodes or any(a is None for a in nodes):
+        return conv.opaque(e)
+    args: list[Node] = nodes  # type: ignore[assignment]
+    if fid == "float":
+        return args[0] if len(args) == 1 else conv.opaque(e)
+    if fid == "log" and len(args) == 2:  # log(x, base) = log(x) / log(base)
+        span = source.span(e)
+        lx = Node("log", (args[0],), span=span, text=source.segment(span))
+        lb = Node("log", (args[1],), span=span, text=f"log({args[1].text})")
+        return conv.node("div", (lx, lb), e)
+    if fid in ("min", "max", "hypot") and len(args) > 2:  # folded pairwise, left to right
+        acc = args[0]
+        for n in args[1:]:
+            acc = conv.node(fid, (acc, n), e)
+        return acc
+    if len(args) != FUNCTIONS[fid].arity:
+        return conv.opaque(e)
+    is_int = fid in ("abs", "min", "max") and all(n.is_int for n in args)
+    return conv.node(fid, tuple(args), e, is_int)
+
+
+def _where(conv: "Converter", e: ast.Call) -> Node | None:
+    branches = [conv.convert(a) for a in e.args[1:]]
+    if not branches or any(a is None for a in branches):
+        return conv.opaque(e)
+    cond = conv.compare(e.args[0]) if len(e.args) == 3 else None
+    if cond is None:
+        return conv.opaque(e)
+    a, b = branches  # type: ignore[misc]
+    return conv.node(SELECT, (cond, a, b), e, a.is_int and b.is_int)

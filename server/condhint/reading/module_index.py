@@ -1,0 +1,222 @@
+"""The module index: everything read once per text and shared by the command line, the language server and
+the rewrites — the syntax tree, imports and aliases, module constants, `# condhint:` comments, and the units
+analysed one at a time (the module-level code, each top-level definition) with the definitions each calls.
+
+A text that does not parse can still be indexed (`tolerant=True`, the editor's case): top-level definitions
+and module-level statements that do not parse on their own are blanked, line numbers kept, and the rest is
+read as usual. Nothing is executed.
+"""
+from __future__ import annotations
+
+import ast
+import hashlib
+import re
+import warnings
+from dataclasses import dataclass, field
+from functools import cached_property
+
+from condhint.expr import Node, Span
+from condhint.reading.comments import Clauses, find_comments
+from condhint.reading.names import Names
+from condhint.reading.source import Source
+from condhint.reading.targets import DEFS
+
+MODULE = "<module>"
+_TOP_LEVEL_DEF = re.compile(r"^(?:@|def\s|async\s+def\s|class\s)")
+_NEWLINE = re.compile(r"\r\n|\r|\n")
+
+
+@dataclass(frozen=True)
+class SyntaxProblem:
+    """Why a text does not parse, and where."""
+
+    span: Span
+    message: str
+    syntax: bool = True  # a syntax error (the rest of the text can be read); else the text cannot be read at all
+
+
+@dataclass(frozen=True)
+class Unit:
+    """A part of a module analysed on its own: the module-level code, or one top-level definition (its
+    decorators belong to the module-level code, which evaluates them)."""
+
+    name: str  # MODULE, or the definition's name
+    start: int  # first and last line (1-based, inclusive); the module-level code spans the whole text
+    end: int
+    stmt: ast.stmt | None = field(default=None, compare=False, repr=False)  # None: the module-level code
+
+    @property
+    def is_module(self) -> bool:
+        return self.stmt is None
+
+    def owns(self, line: int) -> bool:
+        return self.start <= line <= self.end
+
+
+@dataclass
+class ModuleIndex:
+    text: str
+    source: Source
+    tree: ast.Module
+    names: Names
+    comments: list[Clauses]
+    constants: dict[str, Node] = field(default_factory=dict)  # names bound once at module level to constants
+    units: list[Unit] = field(default_factory=list)  # the module-level code first, then definitions in order
+    problem: SyntaxProblem | None = None  # tolerant reading: why the original text does not parse
+    _calls: dict[Unit, frozenset[str]] = field(default_factory=dict, repr=False)
+
+    @cached_property
+    def walrus(self) -> bool:
+        return ":=" in self.text  # otherwise no expression binds a name
+
+    @cached_property
+    def comment_at(self) -> dict[int, Clauses]:
+        return {c.line: c for c in self.comments}
+
+    def unit_at(self, line: int) -> Unit:
+        """The definition holding a line, else the module-level code."""
+        return next((u for u in self.units[1:] if u.owns(line)), self.units[0])
+
+    @cached_property
+    def _definitions(self) -> dict[str, list[Unit]]:
+        by_name: dict[str, list[Unit]] = {}
+        for u in self.units[1:]:
+            by_name.setdefault(u.name, []).append(u)
+        return by_name
+
+    def calls(self, unit: Unit) -> frozenset[str]:
+        """The top-level definitions a unit calls by name."""
+        found = self._calls.get(unit)
+        if found is None:
+            body = self.tree.body if unit.stmt is None else [unit.stmt]
+            found = self._calls[unit] = _calls(body, set(self._definitions), skip_defs=unit.is_module)
+        return found
+
+    def dependencies(self, unit: Unit) -> list[Unit]:
+        """The top-level definitions `unit` calls, directly or through others (each once; recursion is fine)."""
+        by_name = self._definitions
+        out: list[Unit] = []
+        todo = sorted(self.calls(unit))
+        seen = {unit.name}
+        while todo:
+            name = todo.pop()
+            if name in seen:
+                continue
+            seen.add(name)
+            for u in by_name.get(name, []):
+                out.append(u)
+                todo.extend(sorted(self.calls(u)))
+        return out
+
+    def unit_text(self, unit: Unit) -> str:
+        lines = self.source.lines
+        if not unit.is_module:
+            return "\n".join(lines[unit.start - 1:unit.end])
+        out = list(lines)
+        for u in self.units[1:]:
+            out[u.start - 1:u.end] = [""] * (u.end - u.start + 1)
+        return "\n".join(out)
+
+    @cached_property
+    def context_key(self) -> str:
+        """What every unit reads from the rest of the module: names, aliases and module constants."""
+        n = self.names
+        parts = [sorted(n.modules.items()), sorted(n.functions.items()), sorted(n.constants.items()),
+                 sorted(n.shadowed), sorted(n.symbolic), n.uses_sympy, n.uses_mpmath,
+                 sorted((k, v.key()) for k, v in self.constants.items()), [u.name for u in self.units[1:]]]
+        return repr(parts)
+
+    def unit_key(self, unit: Unit, settings: str) -> str:
+        """Equal keys mean equal analyses: the unit's text and place, the definitions it depends on, the
+        module context and the settings."""
+        h = hashlib.sha256()
+        for part in (settings, self.context_key, f"{unit.name}:{unit.start}", self.unit_text(unit),
+                     *(f"{d.name}:{self.unit_text(d)}" for d in self.dependencies(unit))):
+            h.update(part.encode("utf-8", "surrogatepass"))
+            h.update(b"\0")
+        return h.hexdigest()
+
+
+def parse(text: str) -> tuple[ast.Module | None, SyntaxProblem | None]:
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            return ast.parse(text), None
+    except SyntaxError as exc:
+        line = max(exc.lineno or 1, 1)
+        col = max((exc.offset or 1) - 1, 0)
+        return None, SyntaxProblem(Span(line, col, line, col + 1), f"syntax error: {exc.msg}")
+    except (ValueError, RecursionError, MemoryError) as exc:
+        if isinstance(exc, (RecursionError, MemoryError)):  # CPython's parser gives no text for some of these
+            msg = "the file is nested too deeply for Python's parser (Python cannot compile it either)"
+        else:
+            msg = "the file contains null bytes" if "null" in str(exc) else f"the file cannot be parsed: {exc}"
+        return None, SyntaxProblem(Span(1, 0, 1, 1), msg, syntax=False)
+
+
+def read_module(text: str, tolerant: bool = False) -> tuple[ModuleIndex | None, SyntaxProblem | None]:
+    """The index of a text, and why it does not parse (None when it does). Without `tolerant`, a text that
+    does not parse has no index."""
+    tree, problem = parse(text)
+    read = text
+    if tree is None and tolerant and problem is not None and problem.syntax:
+        read = _parseable_part(text)
+        tree, _ = parse(read)
+    if tree is None:
+        return None, problem
+    from condhint.reading.statements import module_constants  # the constants are read like any expression
+
+    index = ModuleIndex(read, Source(read), tree, Names.of_module(tree), find_comments(read), problem=problem)
+    index.constants = module_constants(index)
+    index.units = _units(tree, len(index.source.lines))
+    return index, problem
+
+
+def _units(tree: ast.Module, n_lines: int) -> list[Unit]:
+    units = [Unit(MODULE, 1, max(n_lines, 1))]
+    units += [Unit(s.name, s.lineno, s.end_lineno or s.lineno, s) for s in tree.body if isinstance(s, DEFS)]
+    return units
+
+
+def _calls(body: list[ast.stmt], top: set[str], skip_defs: bool) -> frozenset[str]:
+    found: set[str] = set()
+    stack: list[ast.AST] = [s for s in body if not (skip_defs and isinstance(s, DEFS))]
+    while stack:
+        node = stack.pop()
+        if isinstance(node, ast.Call) and isinstance(node.func, ast.Name) and node.func.id in top:
+            found.add(node.func.id)
+        stack.extend(ast.iter_child_nodes(node))
+    return frozenset(found)
+
+
+# ---- reading a text that does not parse ------------------------------------------------------------------
+def _parseable_part(text: str) -> str:
+    """The text with every top-level definition and module-level statement that does not parse on its own
+    replaced by empty lines."""
+    lines = _NEWLINE.split(text)
+    groups: list[list[int]] = []  # 1-based line numbers of each top-level definition or statement
+    i, n = 0, len(lines)
+    while i < n:
+        if _TOP_LEVEL_DEF.match(lines[i]):
+            start = i
+            i += 1
+            while i < n and (lines[i - 1].lstrip().startswith("@") or not _starts_statement(lines[i])):
+                i += 1
+            groups.append(list(range(start + 1, i + 1)))
+            continue
+        if not groups or _starts_statement(lines[i]):
+            groups.append([i + 1])
+        else:
+            groups[-1].append(i + 1)
+        i += 1
+    keep: set[int] = set()
+    for g in groups:
+        if parse("\n".join(lines[k - 1] for k in g))[0] is not None:
+            keep.update(g)
+    return "\n".join(line if k in keep else "" for k, line in enumerate(lines, start=1))
+
+
+def _starts_statement(line: str) -> bool:
+    """A column-0 line that begins a new top-level statement (not a blank, comment or closing bracket)."""
+    return bool(line) and not line[0].isspace() and line[0] not in "#)]}"
+

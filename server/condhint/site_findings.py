@@ -1,0 +1,42 @@
+"""A site's analysis -> its finding (or none), placed on the operation that causes it."""
+from __future__ import annotations
+
+from condhint.config import Config
+from condhint.expr import Span, topological
+from condhint.findings import Finding, InputInfo
+from condhint.kinds import BY_CATEGORY, NOT_ANALYSED
+from condhint.messages import Facts
+from condhint.numeric.analysis import Analysis
+from condhint.site import Site
+
+
+def finding_for(site: Site, a: Analysis, cfg: Config, path: str, origin: str = "") -> Finding | None:
+    """The finding a site's analysis reports, or None; `origin` is the link back to the site (see
+    `engine.ModuleAnalysis.site_of`)."""
+    if a.category is None or a.digits is None:
+        return None
+    kind = BY_CATEGORY["domain" if a.category == "domain-range" else a.category]
+    severity = kind.severity(a, cfg)
+    if severity is None or kind.message is None:
+        return None
+    nodes = topological(site.root)
+    culprit = nodes[a.culprit] if a.culprit is not None else site.root
+    flagged = culprit if culprit.span is not None else site.root
+    msg = kind.message(Facts(site, a, flagged, [nodes[i] for i in a.sources_of_error], cfg))
+    related = [(b.line, f"`{b.name}` is computed here") for b in site.bindings if b.line != flagged.span.line]
+    inputs = {k: InputInfo(a.bounds[k][0], a.bounds[k][1], a.sources[k],
+                           site.ranges[k].uncertainty if k in site.ranges else None, a.kappa_i.get(k))
+              for k in a.names}
+    return Finding(
+        path=path, span=flagged.span or site.span, code=kind.code, severity=severity, message=msg,
+        expression=flagged.text, category=kind.category, digits_lost=a.digits,
+        predicted_digits_lost=a.worst_predicted, measured_digits_lost=a.worst_measured,
+        kappa=a.worst_kappa if a.worst_kappa is not None else a.kappa, inputs=inputs, worst_at=a.worst_at,
+        fraction_affected=a.fraction, related=related, scope=site.scope, result_uncertainty=a.result_uncertainty,
+        origin=origin,
+    )
+
+
+def not_analysed(path: str, span: Span, reason: str, scope: str = "", expression: str = "") -> Finding:
+    return Finding(path=path, span=span, code=NOT_ANALYSED.code, severity=NOT_ANALYSED.severity(),
+                   message=reason, scope=scope, expression=expression)
