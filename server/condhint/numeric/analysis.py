@@ -18,7 +18,7 @@ from condhint.config import Config
 from condhint.expr import CONST, INPUT, Node, const_rounds, topological
 from condhint.numeric.backends import F64_BACKEND, MP_BACKEND
 from condhint.numeric.evaluate import Deadline, differentiable, forward, reverse
-from condhint.numeric.functions import FUNCTIONS
+from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.sampling import sample
 from condhint.site import InputRange, Interval, Site
 
@@ -70,7 +70,7 @@ def rounds(node: Node) -> bool:
     if node.kind == CONST:
         return node.exact is not None and node.value is not None and math.isfinite(node.value) and const_rounds(
             node.exact, node.value)
-    fn = FUNCTIONS.get(node.kind)
+    fn = OPERATIONS.get(node.kind)
     if fn is None or not fn.rounds or node.is_int:
         return False
     if node.kind in ("mul", "div"):  # scaling by a power of two is exact

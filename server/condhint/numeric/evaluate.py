@@ -10,7 +10,7 @@ import numpy as np
 
 from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, topological
 from condhint.numeric.backends import F64_BACKEND, MP_BACKEND
-from condhint.numeric.functions import FUNCTIONS
+from condhint.numeric.operations import OPERATIONS
 
 Values = dict[int, Any]
 
@@ -56,7 +56,7 @@ def forward(nodes: list[Node], inputs: dict[str, np.ndarray], backend: Any, n: i
                 c, a, b = (vals[id(x)] for x in node.args)
                 vals[id(node)] = backend.where(c, a, b)
             else:
-                fn = FUNCTIONS[k]
+                fn = OPERATIONS[k]
                 args = [vals[id(x)] for x in node.args]
                 vals[id(node)] = (fn.f64 if backend is F64_BACKEND else fn.mp)(*args)
     return vals
@@ -71,7 +71,7 @@ def local_partials(node: Node, vals: Values, backend: Any) -> tuple[Any, ...]:
     if node.kind == SELECT:
         c = vals[id(node.args[0])]
         return (0.0, backend.where(c, 1.0, 0.0), backend.where(c, 0.0, 1.0))
-    fn = FUNCTIONS[node.kind]
+    fn = OPERATIONS[node.kind]
     args = [vals[id(a)] for a in node.args]
     out = vals[id(node)]
     with np.errstate(all="ignore"):
