@@ -51,7 +51,7 @@ def finding_for(site: Site, a: Analysis, cfg: Config, path: str) -> Finding | No
     nodes = topological(site.root)
     culprit = nodes[a.culprit] if a.culprit is not None else site.root
     flagged = culprit if culprit.span is not None else site.root
-    total = -math.log10(cfg.unit_roundoff)
+    total = site.float_format.digits
     th = cfg.thresholds
     cat = "domain" if a.category == "domain-range" else a.category
     if not a.declared and (a.fraction or 0) < cfg.min_fraction and cat in ("formula", "inherent"):

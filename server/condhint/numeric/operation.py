@@ -11,7 +11,7 @@ from typing import Any, Callable, Mapping, Sequence
 
 import numpy as np
 
-from condhint.numeric.formats import BINARY64, Format
+from condhint.numeric.formats import Format
 
 Array = np.ndarray
 Partials = Callable[[Any, Sequence[Array], Array], tuple[Any, ...]]
