@@ -37,8 +37,6 @@ def _const(node: Node) -> sp.Expr:
     return -v if neg else v
 
 
-# The exact sympy form of each operation, derived from the operation records.
-EXACT_FORMS: dict[str, Any] = {op.id: op.sympy_form(sp) for op in OPERATIONS.values() if op.sympy is not None}
 _CMP = {"<": sp.Lt, "<=": sp.Le, ">": sp.Gt, ">=": sp.Ge, "==": sp.Eq, "!=": sp.Ne}
 
 
@@ -49,9 +47,12 @@ def operation(node: Node, args: list[Any], forms: dict[str, Any] | None = None) 
     if node.kind == SELECT:
         c, a, b = args
         return sp.Piecewise((a, c), (b, True))
-    fn = (forms or {}).get(node.kind) or EXACT_FORMS.get(node.kind)
+    fn = (forms or {}).get(node.kind)
     if fn is None:
-        raise ValueError(f"no symbolic form for {node.kind}")
+        op = OPERATIONS.get(node.kind)
+        if op is None:
+            raise ValueError(f"no symbolic form for {node.kind}")
+        fn = op.sympy_form(sp)  # the record's exact form
     return fn(*args)
 
 

@@ -8,7 +8,9 @@ from __future__ import annotations
 import ast
 import math
 from dataclasses import dataclass, field
+from typing import Mapping
 
+from condhint.numeric.operation import Operation
 from condhint.numeric.operations import OPERATIONS
 
 # Spellings the reader handles itself: conversions to binary64 and numpy's elementwise choice (not operations).
@@ -17,10 +19,10 @@ _READER_SPELLINGS: dict[str, dict[str, str]] = {
 }
 
 
-def _function_spellings() -> dict[str, dict[str, str]]:
+def function_spellings(operations: Mapping[str, Operation]) -> dict[str, dict[str, str]]:
     """Module -> local spelling -> operation id: a view of the operation records' spellings."""
     table: dict[str, dict[str, str]] = {}
-    for op in OPERATIONS.values():
+    for op in operations.values():
         for module, spelled in op.spellings.by_module().items():
             for name in spelled:
                 table.setdefault(module, {})[name] = op.id
@@ -29,7 +31,7 @@ def _function_spellings() -> dict[str, dict[str, str]]:
     return table
 
 
-FUNCTION_SPELLINGS: dict[str, dict[str, str]] = _function_spellings()
+FUNCTION_SPELLINGS: dict[str, dict[str, str]] = function_spellings(OPERATIONS)
 
 # Module -> name -> exact value text understood by the reference backend.
 CONSTANTS: dict[str, dict[str, str]] = {
