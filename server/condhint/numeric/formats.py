@@ -3,7 +3,7 @@
 A format is fixed by its precision p (significand bits, the implicit bit included) and its largest exponent
 emax; every limit the analysis uses (unit roundoff, overflow and underflow thresholds, decimal digits) is
 derived from those two numbers here and read from the record everywhere else.
-To add a format: one `Format(...)` in `_TABLE` and its check values in tests/engine/test_formats.py.
+To add a format: one `Format(...)` listed in `FORMATS`, and its check values in tests/engine/test_formats.py.
 """
 from __future__ import annotations
 
