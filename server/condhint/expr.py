@@ -36,7 +36,7 @@ SELECT = "select"  # piecewise: args (cond, if_true, if_false)
 
 
 class Node:
-    """One operation or leaf. `kind` is INPUT, CONST, COMPARE, SELECT or a function id of `functions.FUNCTIONS`."""
+    """One operation or leaf. `kind` is INPUT, CONST, COMPARE, SELECT or an operation id (`numeric.operations`)."""
 
     __slots__ = ("kind", "args", "name", "value", "exact", "span", "is_int", "text", "format", "_key", "__weakref__")
 

@@ -1,7 +1,6 @@
 """Forward evaluation and reverse-mode adjoints of a site's DAG, vectorised over samples, on either backend."""
 from __future__ import annotations
 
-import math
 import time
 from typing import Any
 
@@ -134,7 +133,3 @@ def evaluate_constant(node: Node) -> float | None:
 
 def is_finite(a: np.ndarray) -> np.ndarray:
     return np.isfinite(np.asarray(a, dtype=float))
-
-
-def ulp_digits(unit_roundoff: float) -> float:
-    return -math.log10(unit_roundoff)

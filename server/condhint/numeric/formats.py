@@ -42,9 +42,6 @@ class Format:
     def names(self) -> tuple[str, ...]:
         return (self.name, *self.aliases)
 
-    def __str__(self) -> str:
-        return self.name
-
 
 BINARY64 = Format("binary64", ("float64", "double"), 53, 1023, "float64")
 BINARY32 = Format("binary32", ("float32", "single"), 24, 127, "float32")

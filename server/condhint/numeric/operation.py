@@ -17,9 +17,6 @@ Array = np.ndarray
 Partials = Callable[[Any, Sequence[Array], Array], tuple[Any, ...]]
 SympyForm = Callable[[Any], Callable[..., Any]]  # receives the sympy module, gives a builder of the form
 
-# Modules whose spellings the reader knows, in the order `Spellings.by_module` lists them.
-MODULES = ("math", "cmath", "numpy", "scipy.special", "builtins")
-
 
 @dataclass(frozen=True)
 class Signature:
@@ -33,9 +30,6 @@ class Signature:
     def fixed(self) -> int | None:
         """The one argument count of a fixed-arity scalar operation, else None."""
         return self.min_args if self.max_args == self.min_args and not self.reduces else None
-
-    def accepts(self, count: int) -> bool:
-        return count >= self.min_args and (self.max_args is None or count <= self.max_args)
 
 
 UNARY, BINARY = Signature(1, 1), Signature(2, 2)
