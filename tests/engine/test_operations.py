@@ -62,11 +62,11 @@ def within_ulps(approx: float, exact: mpmath.mpf, ulps: float) -> bool:
     return abs(mpmath.mpf(approx) - exact) <= ulps * mpmath.mpf(math.ulp(float(exact)))
 
 
-def test_every_operation_has_its_views() -> None:
-    # the former table's name stays an alias of the registry (other modules import it)
+def test_the_former_table_is_an_alias_with_the_fields_other_modules_read() -> None:
     assert FUNCTIONS is OPERATIONS
     for op in RECORDS:
-        assert op.arity == op.signature.min_args and op.sympy is not None and op.label
+        assert op.arity == op.signature.fixed and op.rounds == (op.rounding.ulps > 0) and op.f64 is op.ufunc
+        assert all(hasattr(op, name) for name in ("label", "domain", "valid", "mp", "partials"))
         assert any(op.spellings.by_module().values()), f"{op.id} cannot be spelled"
 
 
