@@ -9,6 +9,8 @@ from dataclasses import dataclass
 from fractions import Fraction
 from typing import Iterator
 
+from condhint.numeric.formats import BINARY64, Format
+
 
 @dataclass(frozen=True)
 class Span:
@@ -34,9 +36,9 @@ SELECT = "select"  # piecewise: args (cond, if_true, if_false)
 
 
 class Node:
-    """One operation or leaf. `kind` is INPUT, CONST, COMPARE, SELECT or a function id of `functions.FUNCTIONS`."""
+    """One operation or leaf. `kind` is INPUT, CONST, COMPARE, SELECT or an operation id (`numeric.operations`)."""
 
-    __slots__ = ("kind", "args", "name", "value", "exact", "span", "is_int", "text", "_key", "__weakref__")
+    __slots__ = ("kind", "args", "name", "value", "exact", "span", "is_int", "text", "format", "_key", "__weakref__")
 
     def __init__(
         self,
@@ -49,6 +51,7 @@ class Node:
         span: Span | None = None,
         is_int: bool = False,
         text: str = "",
+        format: Format = BINARY64,
     ) -> None:
         self.kind = kind
         self.args = args
@@ -58,6 +61,7 @@ class Node:
         self.span = span
         self.is_int = is_int
         self.text = text  # source text of the expression, for messages
+        self.format = format  # the number format the operation computes in (a leaf: the format it is held in)
         self._key: str | None = None
 
     def __repr__(self) -> str:
@@ -80,6 +84,8 @@ class Node:
                     item = f"c:{node.exact}"
                 else:
                     item = f"{node.kind}:{node.name or ''}({a})"
+                if node.format is not BINARY64:  # binary64 keys stay as they were before formats existed
+                    item += f"@{node.format.name}"
                 ids[id(node)] = len(parts)
                 parts.append(item)
             self._key = ";".join(parts)

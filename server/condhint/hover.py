@@ -89,7 +89,7 @@ def describe(site: Site, node: Node, analysis: Analysis, cfg: Config, finding: F
     return HoverFacts(
         text=" ".join(node.text.split()), kappa=analysis.kappa, kappa_median=analysis.kappa_median,
         kappa_at=analysis.kappa_at, predicted=analysis.predicted, measured=analysis.measured,
-        total_digits=-math.log10(cfg.unit_roundoff), samples=analysis.n_samples, limiting=limiting,
+        total_digits=site.float_format.digits, samples=analysis.n_samples, limiting=limiting,
         limiting_line=limiting_line, inputs=inputs, result_uncertainty=analysis.result_uncertainty,
         finding=finding)
 

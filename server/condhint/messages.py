@@ -57,7 +57,7 @@ class Facts:
 
     @property
     def total_digits(self) -> float:
-        return -math.log10(self.cfg.unit_roundoff)
+        return self.site.float_format.digits
 
     @property
     def share(self) -> str:

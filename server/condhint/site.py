@@ -5,6 +5,7 @@ import math
 from dataclasses import dataclass, field, replace
 
 from condhint.expr import Node, Span
+from condhint.numeric.formats import BINARY64, Format
 
 
 @dataclass(frozen=True)
@@ -75,4 +76,4 @@ class Site:
     filters: tuple[Filter, ...] = ()
     bindings: tuple[Binding, ...] = ()
     bindings_by_node: dict[int, Binding] = field(default_factory=dict, repr=False)
-    float_format: str = "float64"
+    float_format: Format = BINARY64  # the number format the expression computes in

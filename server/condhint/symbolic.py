@@ -11,6 +11,7 @@ from typing import Any
 import sympy as sp
 
 from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, topological
+from condhint.numeric.operations import OPERATIONS
 
 _SAFE = re.compile(r"[^0-9A-Za-z_]")
 
@@ -36,20 +37,6 @@ def _const(node: Node) -> sp.Expr:
     return -v if neg else v
 
 
-_UNARY = {
-    "sqrt": sp.sqrt, "cbrt": lambda a: sp.root(a, 3), "exp": sp.exp, "exp2": lambda a: sp.Integer(2) ** a,
-    "expm1": lambda a: sp.exp(a) - 1, "log": sp.log, "log2": lambda a: sp.log(a, 2), "log10": lambda a: sp.log(a, 10),
-    "log1p": lambda a: sp.log(1 + a), "sin": sp.sin, "cos": sp.cos, "tan": sp.tan, "asin": sp.asin, "acos": sp.acos,
-    "atan": sp.atan, "sinh": sp.sinh, "cosh": sp.cosh, "tanh": sp.tanh, "asinh": sp.asinh, "acosh": sp.acosh,
-    "atanh": sp.atanh, "abs": sp.Abs, "square": lambda a: a**2, "reciprocal": lambda a: 1 / a, "erf": sp.erf,
-    "erfc": sp.erfc, "neg": lambda a: -a, "floor": sp.floor, "ceil": sp.ceiling,
-}
-_BINARY = {
-    "add": lambda a, b: a + b, "sub": lambda a, b: a - b, "mul": lambda a, b: a * b, "div": lambda a, b: a / b,
-    "pow": lambda a, b: a**b, "atan2": sp.atan2, "hypot": lambda a, b: sp.sqrt(a**2 + b**2),
-    "logaddexp": lambda a, b: sp.log(sp.exp(a) + sp.exp(b)), "min": sp.Min, "max": sp.Max,
-    "copysign": lambda a, b: sp.Abs(a) * sp.sign(b),
-}
 _CMP = {"<": sp.Lt, "<=": sp.Le, ">": sp.Gt, ">=": sp.Ge, "==": sp.Eq, "!=": sp.Ne}
 
 
@@ -60,9 +47,12 @@ def operation(node: Node, args: list[Any], forms: dict[str, Any] | None = None) 
     if node.kind == SELECT:
         c, a, b = args
         return sp.Piecewise((a, c), (b, True))
-    fn = (forms or {}).get(node.kind) or (_UNARY.get(node.kind) if len(args) == 1 else _BINARY.get(node.kind))
+    fn = (forms or {}).get(node.kind)
     if fn is None:
-        raise ValueError(f"no symbolic form for {node.kind}")
+        op = OPERATIONS.get(node.kind)
+        if op is None:
+            raise ValueError(f"no symbolic form for {node.kind}")
+        fn = op.sympy_form(sp)  # the record's exact form
     return fn(*args)
 
 

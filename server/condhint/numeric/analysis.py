@@ -18,7 +18,8 @@ from condhint.config import Config
 from condhint.expr import CONST, INPUT, Node, const_rounds, topological
 from condhint.numeric.backends import F64_BACKEND, MP_BACKEND
 from condhint.numeric.evaluate import Deadline, differentiable, forward, reverse
-from condhint.numeric.functions import FUNCTIONS
+from condhint.numeric.operations import OPERATIONS
+from condhint.numeric.reference import reference_values, relative_error
 from condhint.numeric.sampling import sample
 from condhint.site import InputRange, Interval, Site
 
@@ -70,7 +71,7 @@ def rounds(node: Node) -> bool:
     if node.kind == CONST:
         return node.exact is not None and node.value is not None and math.isfinite(node.value) and const_rounds(
             node.exact, node.value)
-    fn = FUNCTIONS.get(node.kind)
+    fn = OPERATIONS.get(node.kind)
     if fn is None or not fn.rounds or node.is_int:
         return False
     if node.kind in ("mul", "div"):  # scaling by a power of two is exact
@@ -159,42 +160,6 @@ def digits_of(x: np.ndarray, total: float) -> np.ndarray:
     return np.minimum(d, total)
 
 
-def reference_values(nodes: list[Node], cols: dict[str, np.ndarray], m: int, deadline: Deadline | None,
-               shallow: bool = False) -> tuple[dict[int, Any], int]:
-    """mpmath values at a precision that makes the result stable (checked by re-evaluating higher).
-
-    `shallow`: binary64 already shows that fewer than 12 digits cancel, so 50 digits leave ample margin and
-    one evaluation suffices.
-    """
-    root = nodes[-1]
-    if shallow:
-        with mpmath.workdps(50):
-            return forward(nodes, cols, MP_BACKEND, m, deadline), 50
-    dps = 40
-    prev = None
-    while True:
-        with mpmath.workdps(dps):
-            vals = forward(nodes, cols, MP_BACKEND, m, deadline)
-            cur = vals[id(root)]
-            if prev is not None:
-                with mpmath.workdps(dps):
-                    ok = all(_agree(a, b) for a, b in zip(prev, cur))
-                if ok or dps >= 1280:
-                    return vals, dps
-        prev = cur
-        dps = dps + 40 if dps < 80 else dps * 2
-
-
-def _agree(a: Any, b: Any) -> bool:
-    if mpmath.isnan(a) or mpmath.isnan(b):
-        return bool(mpmath.isnan(a) and mpmath.isnan(b))
-    if mpmath.isinf(a) or mpmath.isinf(b):
-        return a == b
-    if b == 0:
-        return a == 0
-    return abs((a - b) / b) < mpmath.mpf(10) ** -22
-
-
 def _subset(scores: list[np.ndarray], n: int, k: int) -> np.ndarray:
     picks: list[int] = [0, n - 1] if n > 1 else [0]
     quota = max(1, k // (2 * len(scores))) if scores else 0
@@ -255,8 +220,8 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
              ranges: dict[str, InputRange], cols: dict[str, np.ndarray], bounds: dict[str, tuple[float, float]],
              n: int, declared: bool,
              rounding: list[int], deadline: Deadline | None, keep_points: bool) -> Analysis:
-    u = cfg.unit_roundoff
-    total = -math.log10(u)
+    fmt = site.float_format
+    u, total = fmt.unit_roundoff, fmt.digits
     th = cfg.thresholds
     v64 = forward(nodes, cols, F64_BACKEND, n, deadline)
     r64 = np.asarray(v64[id(root)], dtype=float)
@@ -298,7 +263,7 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
         err = np.array([relative_error(float(a), b) for a, b in zip(r, fmp)], dtype=float)
     defined = np.array([not mpmath.isnan(v) for v in fmp], dtype=bool)
     nonzero = np.array([v != 0 for v in fmp], dtype=bool)
-    normal = defined & np.isfinite(ffl) & nonzero & (np.abs(ffl) >= 2.2250738585072014e-308)
+    normal = defined & np.isfinite(ffl) & nonzero & (np.abs(ffl) >= fmt.smallest_normal)
     meas = digits_of(err / u, total)
     if _settled(th.info, normal, meas, logk64[fin64], inner_bad[idx] | ~fin64[idx]):
         # The reference shows no reportable loss and binary64 κ is small: no finding is possible; the exact κ
@@ -380,17 +345,6 @@ def _settled(info: float, normal: np.ndarray, measured: np.ndarray, log_kappa64:
     terms, far below a digit, but κ in mpmath is what decides the inherent category)."""
     return bool(normal.all() and not nonfinite64.any() and np.max(measured, initial=0.0) < info
                 and np.max(log_kappa64, initial=0.0) < info - 1.0)
-
-
-def relative_error(approx: float, exact: Any) -> float:
-    if mpmath.isnan(exact) or exact == 0:
-        return math.nan
-    if not math.isfinite(approx):
-        return math.inf
-    try:
-        return abs(float((mpmath.mpf(approx) - exact) / exact))
-    except (OverflowError, ValueError):
-        return math.inf
 
 
 def _step_conditions(nodes: list[Node], vals: dict[int, Any], partials: dict[int, tuple[Any, ...]]

@@ -1,7 +1,6 @@
 """Forward evaluation and reverse-mode adjoints of a site's DAG, vectorised over samples, on either backend."""
 from __future__ import annotations
 
-import math
 import time
 from typing import Any
 
@@ -10,7 +9,7 @@ import numpy as np
 
 from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, topological
 from condhint.numeric.backends import F64_BACKEND, MP_BACKEND
-from condhint.numeric.functions import FUNCTIONS
+from condhint.numeric.operations import OPERATIONS
 
 Values = dict[int, Any]
 
@@ -56,7 +55,7 @@ def forward(nodes: list[Node], inputs: dict[str, np.ndarray], backend: Any, n: i
                 c, a, b = (vals[id(x)] for x in node.args)
                 vals[id(node)] = backend.where(c, a, b)
             else:
-                fn = FUNCTIONS[k]
+                fn = OPERATIONS[k]
                 args = [vals[id(x)] for x in node.args]
                 vals[id(node)] = (fn.f64 if backend is F64_BACKEND else fn.mp)(*args)
     return vals
@@ -71,7 +70,7 @@ def local_partials(node: Node, vals: Values, backend: Any) -> tuple[Any, ...]:
     if node.kind == SELECT:
         c = vals[id(node.args[0])]
         return (0.0, backend.where(c, 1.0, 0.0), backend.where(c, 0.0, 1.0))
-    fn = FUNCTIONS[node.kind]
+    fn = OPERATIONS[node.kind]
     args = [vals[id(a)] for a in node.args]
     out = vals[id(node)]
     with np.errstate(all="ignore"):
@@ -134,7 +133,3 @@ def evaluate_constant(node: Node) -> float | None:
 
 def is_finite(a: np.ndarray) -> np.ndarray:
     return np.isfinite(np.asarray(a, dtype=float))
-
-
-def ulp_digits(unit_roundoff: float) -> float:
-    return -math.log10(unit_roundoff)

@@ -1,36 +1,37 @@
 """Which names in a module denote known elementary functions and constants.
 
-Spellings are tabulated per module; imports (`import numpy as np`, `from math import sqrt as s`,
-`from numpy import *`) map local names onto them. Nothing is imported or evaluated.
+Spellings come from the operation records (`numeric.operations`); imports (`import numpy as np`,
+`from math import sqrt as s`, `from numpy import *`) map local names onto them. Nothing is imported or evaluated.
 """
 from __future__ import annotations
 
 import ast
 import math
 from dataclasses import dataclass, field
+from typing import Mapping
 
-_COMMON = {
-    "sqrt": "sqrt", "exp": "exp", "log": "log", "log2": "log2", "log10": "log10", "log1p": "log1p",
-    "expm1": "expm1", "sin": "sin", "cos": "cos", "tan": "tan", "sinh": "sinh", "cosh": "cosh",
-    "tanh": "tanh", "hypot": "hypot", "copysign": "copysign", "floor": "floor", "ceil": "ceil",
-    "cbrt": "cbrt", "exp2": "exp2",
+from condhint.numeric.operation import Operation
+from condhint.numeric.operations import OPERATIONS
+
+# Spellings the reader handles itself: conversions to binary64 and numpy's elementwise choice (not operations).
+_READER_SPELLINGS: dict[str, dict[str, str]] = {
+    "numpy": {"float64": "float", "double": "float", "where": "where"}, "builtins": {"float": "float"},
 }
-# Module -> local spelling -> function id.
-FUNCTION_SPELLINGS: dict[str, dict[str, str]] = {
-    "math": {**_COMMON, "asin": "asin", "acos": "acos", "atan": "atan", "atan2": "atan2", "asinh": "asinh",
-             "acosh": "acosh", "atanh": "atanh", "pow": "pow", "fabs": "abs", "erf": "erf", "erfc": "erfc"},
-    "numpy": {**_COMMON, "arcsin": "asin", "arccos": "acos", "arctan": "atan", "arctan2": "atan2",
-              "arcsinh": "asinh", "arccosh": "acosh", "arctanh": "atanh", "power": "pow", "float_power": "pow",
-              "abs": "abs", "absolute": "abs", "fabs": "abs", "square": "square", "reciprocal": "reciprocal",
-              "logaddexp": "logaddexp", "minimum": "min", "maximum": "max", "fmin": "min", "fmax": "max",
-              "add": "add", "subtract": "sub", "multiply": "mul", "divide": "div", "true_divide": "div",
-              "negative": "neg", "float64": "float", "double": "float", "asin": "asin", "acos": "acos",
-              "atan": "atan", "atan2": "atan2", "asinh": "asinh", "acosh": "acosh", "atanh": "atanh",
-              "pow": "pow", "where": "where"},
-    "scipy.special": {"erf": "erf", "erfc": "erfc", "expm1": "expm1", "log1p": "log1p", "cbrt": "cbrt",
-                      "exp2": "exp2", "logsumexp": "", "cosm1": "", "powm1": ""},
-    "builtins": {"abs": "abs", "pow": "pow", "min": "min", "max": "max", "float": "float"},
-}
+
+
+def function_spellings(operations: Mapping[str, Operation]) -> dict[str, dict[str, str]]:
+    """Module -> local spelling -> operation id: a view of the operation records' spellings."""
+    table: dict[str, dict[str, str]] = {}
+    for op in operations.values():
+        for module, spelled in op.spellings.by_module().items():
+            for name in spelled:
+                table.setdefault(module, {})[name] = op.id
+    for module, extra in _READER_SPELLINGS.items():
+        table.setdefault(module, {}).update(extra)
+    return table
+
+
+FUNCTION_SPELLINGS: dict[str, dict[str, str]] = function_spellings(OPERATIONS)
 
 # Module -> name -> exact value text understood by the reference backend.
 CONSTANTS: dict[str, dict[str, str]] = {

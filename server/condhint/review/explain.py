@@ -20,6 +20,7 @@ from condhint.findings import Finding, Fix
 from condhint.messages import num
 from condhint.numeric.analysis import Analysis, analyse
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
+from condhint.numeric.formats import BINARY64
 from condhint.numeric.functions import FUNCTIONS
 from condhint.numeric.analysis import keep_where_guards_hold
 from condhint.review.profile import Profile, input_names, profile, swept_input, sweep
@@ -72,7 +73,7 @@ class Explanation:
     curve: Profile
     contributions: list[Contribution] = field(default_factory=list)
     candidates: list[Candidate] = field(default_factory=list)
-    total_digits: float = 15.95
+    total_digits: float = BINARY64.digits
     # (cell, line within the cell) of a line of the analysed text: notebooks are analysed as joined cells.
     cell_line: Callable[[int], tuple[int | None, int]] = lambda line: (None, line)
 
@@ -235,7 +236,7 @@ def explain(text: str, path: str, line: int, col: int | None, cfg: Config, tries
         measure_fix(text, path, cfg, site, c, curve.cols)
     expl = Explanation(path, site, a, finding, formula, formula_note, swept,
                        {k: v for k, v in worst.items() if k != swept}, curve, contributions(curve, at), cands,
-                       -math.log10(cfg.unit_roundoff))
+                       site.float_format.digits)
     return expl, note
 
 

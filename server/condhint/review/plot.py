@@ -70,7 +70,7 @@ def plot(e: Explanation, file: str, thresholds: tuple[float, float, float] = (2.
     ax.set_xscale(scale, **kw)
     ax.set_ylim(-0.4, math.ceil(e.total_digits) + 0.6)
     ax.set_xlabel(e.swept + ("   (other inputs at the worst case)" if e.held else ""))
-    ax.set_ylabel(f"digits lost (of {e.total_digits:.0f}, binary64)")
+    ax.set_ylabel(f"digits lost (of {e.total_digits:.0f}, {e.site.float_format.name})")
     ax.set_title(_short(e.site.root.text, 70), fontsize=10, family="monospace")
     ax.grid(True, which="major", color="#eeeeee", linewidth=0.6)
     ax.legend(fontsize=7.5, loc="best", framealpha=0.9)

@@ -15,7 +15,7 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Callable
 
 from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, topological
-from condhint.numeric.functions import FUNCTIONS
+from condhint.numeric.operations import OPERATIONS
 
 if TYPE_CHECKING:
     from condhint.expr import Span
@@ -28,15 +28,6 @@ _BINOP_P = {ast.Add: ADD_P, ast.Sub: ADD_P, ast.Mult: MUL_P, ast.Div: MUL_P, ast
             ast.RShift: 10}
 _OPS = {"add": (" + ", ADD_P), "sub": (" - ", ADD_P), "mul": (" * ", MUL_P), "div": (" / ", MUL_P)}
 
-_SAME_NAME = ("sqrt", "exp", "expm1", "log", "log1p", "log2", "log10", "sin", "cos", "tan", "sinh", "cosh", "tanh",
-              "hypot", "copysign", "floor", "ceil")
-SPELLINGS: dict[str, dict[str, str]] = {
-    "math": {**{f: f for f in _SAME_NAME}, "asinh": "asinh", "acosh": "acosh", "atanh": "atanh", "asin": "asin",
-             "acos": "acos", "atan": "atan", "atan2": "atan2", "erf": "erf", "erfc": "erfc"},
-    "numpy": {**{f: f for f in _SAME_NAME}, "asinh": "arcsinh", "acosh": "arccosh", "atanh": "arctanh",
-              "asin": "arcsin", "acos": "arccos", "atan": "arctan", "atan2": "arctan2", "logaddexp": "logaddexp",
-              "exp2": "exp2", "cbrt": "cbrt", "max": "maximum", "min": "minimum"},
-}
 CONSTANT_NAMES = {"pi", "e", "tau", "inf"}
 
 
@@ -165,7 +156,7 @@ class Spelling:
         """The module and import style the site's own calls use (the file's imports when it calls none)."""
         seen: Counter[tuple[str, bool]] = Counter()
         for node in nodes:
-            if node.kind in FUNCTIONS and node.kind not in _OPS and "(" in node.text and node.text.endswith(")"):
+            if node.kind in OPERATIONS and node.kind not in _OPS and "(" in node.text and node.text.endswith(")"):
                 callee = node.text[: node.text.index("(")].strip()
                 if "." in callee:
                     mod = style.alias_module.get(callee.rsplit(".", 1)[0])
@@ -190,11 +181,13 @@ class Spelling:
             self.imports.append(statement)
 
     def function(self, fid: str) -> str:
-        if fid == "abs" or (fid in ("min", "max") and not self.array_style):
-            return fid
+        generated = OPERATIONS[fid].generated  # the record's spelling per module
+        builtin = generated.get("builtins")
+        if builtin is not None and not (self.array_style and "numpy" in generated):
+            return builtin
         other = "math" if self.module == "numpy" else "numpy"
         for mod in (self.module, other):
-            attr = SPELLINGS[mod].get(fid)
+            attr = generated.get(mod)
             if attr is None:
                 continue
             if mod == self.module and self.from_style:
@@ -283,7 +276,7 @@ class Emitter:
             if self.spelling.array_style:
                 return f"{self.spelling.where()}({c[0]}, {a[0]}, {b[0]})", ATOM_P
             return f"{_par(a[0], a[1] <= SELECT_P)} if {_par(c[0], c[1] <= SELECT_P)} else {b[0]}", SELECT_P
-        if node.kind in FUNCTIONS:
+        if node.kind in OPERATIONS:
             name = self.spelling.function(node.kind)
             args = ", ".join(_par(t, p < SELECT_P) for t, p in (self._emit(a) for a in node.args))
             return f"{name}({args})", ATOM_P

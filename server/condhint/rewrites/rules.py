@@ -89,16 +89,16 @@ def _sympy_build(optims: tuple[Any, ...], produces: type) -> Callable[[Match, Co
 
 
 EXPM1 = Rule("expm1", "Use expm1 for exp(x) − 1", "any x", "Goldberg 1991; ISO C99 expm1 (via sympy)",
-             _has("exp"), _sympy_build((sr.expm1_opt,), sym.expm1))
+             _has("exp"), _sympy_build((sr.expm1_opt,), sym.named("expm1")))
 LOG1P = Rule("log1p", "Use log1p for log(1 + x)", "x > −1", "Goldberg 1991; ISO C99 log1p (via sympy)",
-             _has("log"), _sympy_build((sr.log1p_opt,), sym.log1p))
+             _has("log"), _sympy_build((sr.log1p_opt,), sym.named("log1p")))
 LOGADDEXP = Rule("logaddexp", "Use logaddexp for log(exp(a) + exp(b))", "any a, b",
                  "common practice; numpy logaddexp (via sympy)", _has("log"),
-                 _sympy_build((sr.logaddexp_opt,), sym.logaddexp))
+                 _sympy_build((sr.logaddexp_opt,), sym.named("logaddexp")))
 LOG2 = Rule("log2", "Use log2 for log(x) / log(2)", "x > 0", "ISO C99 log2 (via sympy)", _has("log"),
-            _sympy_build((sr.log2_opt,), sym.log2), cost=2)
+            _sympy_build((sr.log2_opt,), sym.named("log2")), cost=2)
 EXP2 = Rule("exp2", "Use exp2 for 2 ** x", "any x", "ISO C99 exp2 (via sympy)", _has("pow"),
-            _sympy_build((sr.exp2_opt,), sym.exp2), cost=2)
+            _sympy_build((sr.exp2_opt,), sym.named("exp2")), cost=2)
 
 
 def _max_plus_log1p(m: Match, ctx: Context) -> list[Node]:

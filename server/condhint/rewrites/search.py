@@ -21,9 +21,10 @@ from sympy.codegen import rewriting as sr
 
 from condhint.budget import OverBudget, run_with_budget
 from condhint.expr import CONST, INPUT, Node, topological
-from condhint.numeric.analysis import reference_values
 from condhint.numeric.backends import F64_BACKEND
 from condhint.numeric.evaluate import BudgetExceeded, Deadline, forward
+from condhint.numeric.formats import Format
+from condhint.numeric.reference import reference_values
 from condhint.rewrites import dag, sym
 from condhint.rewrites.context import Context
 
@@ -149,7 +150,7 @@ def series(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Found]:
     try:
         exact = _exact(local, grid, deadline)
         orig = _lost(forward(topological(local), {SERIES_VAR: grid}, F64_BACKEND, len(grid))[id(local)], exact,
-                     ctx.bench.u)
+                     ctx.bench.format)
     except BudgetExceeded:
         return
     try:
@@ -174,7 +175,7 @@ def series(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Found]:
         poly = series_node(terms, x)
         with np.errstate(all="ignore"):
             p64 = forward(topological(poly), {SERIES_VAR: grid}, F64_BACKEND, len(grid))[id(poly)]
-        plost = _lost(p64, exact, ctx.bench.u)
+        plost = _lost(p64, exact, ctx.bench.format)
         use = np.abs(grid) < switch
         worst = float(max(np.max(plost[use], initial=0.0), np.max(orig[~use], initial=0.0)))
         if best is None or worst < best[0] - 0.25:
@@ -215,10 +216,11 @@ def _truncation(terms: list[tuple[Fraction, int]], grid: np.ndarray, exact: list
     return out
 
 
-def _lost(values: Any, exact: list[Any], u: float) -> np.ndarray:
+def _lost(values: Any, exact: list[Any], fmt: Format) -> np.ndarray:
+    """Digits lost by each value against the exact one, counted in `fmt`."""
     v = np.asarray(values, dtype=float)
     out = np.empty(len(v))
-    total = -math.log10(u)
+    u, total = fmt.unit_roundoff, fmt.digits
     with mpmath.workdps(60):
         for i, (a, e) in enumerate(zip(v, exact)):
             if mpmath.isnan(e) or e == 0:

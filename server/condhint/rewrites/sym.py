@@ -9,10 +9,9 @@ from fractions import Fraction
 from typing import Any, Callable
 
 import sympy as sp
-from sympy.codegen.cfunctions import Cbrt, exp2, expm1, hypot, log1p, log2, log10
-from sympy.codegen.numpy_nodes import logaddexp
 
 from condhint.expr import CONST, INPUT, Node, topological
+from condhint.numeric.operations import OPERATIONS
 from condhint.rewrites import dag
 from condhint.symbolic import _const, operation, symbol_name
 
@@ -42,7 +41,7 @@ class Translation:
                     self.consts.setdefault(v, node)
             else:
                 vals[id(node)] = operation(node, [vals[id(x)] for x in node.args],
-                                           None if exact_forms else _CODEGEN_FORMS)
+                                           None if exact_forms else _NAMED)
             self.nodes.setdefault(vals[id(node)], node)
         self.expr = vals[id(root)]
 
@@ -51,10 +50,15 @@ def atom_name(node: Node) -> str:
     return node.name or (node.text if node.text.isidentifier() else "v")
 
 
-_CODEGEN_FORMS = {
-    "expm1": expm1, "log1p": log1p, "hypot": hypot, "logaddexp": logaddexp, "log2": log2, "exp2": exp2,
-    "log10": log10, "cbrt": Cbrt,
-}
+# Operations with a sympy function class of their own (sympy.sin, sympy.codegen's expm1, …), from the records: in
+# rewrites they are built as that class, so that simplification keeps them, and the class converts back to them.
+_NAMED: dict[str, Any] = {op.id: op.sympy_form(sp, named=True) for op in OPERATIONS.values()
+                          if op.sympy_named is not None}
+
+
+def named(op_id: str) -> Any:
+    """The sympy function class standing for an operation in rewrites (`named("expm1")`: sympy.codegen's expm1)."""
+    return _NAMED[op_id]
 
 
 def to_sympy(root: Node, atoms: set[int] | None = None, positive: Callable[[Node], bool] | None = None,
@@ -154,18 +158,10 @@ def _build(e: Any, go: Callable[[Any], Node], tr: Translation) -> Node:
     if isinstance(e, (sp.Max, sp.Min)) and len(e.args) == 2:
         kind = "max" if isinstance(e, sp.Max) else "min"
         return dag.call(kind, go(e.args[0]), go(e.args[1]))
-    for kind, cls in _FUNCTION_CLASSES.items():
+    for kind, cls in _NAMED.items():
         if isinstance(e, cls):
             return dag.call(kind, *(go(a) for a in e.args))
     raise Untranslatable(type(e).__name__)
-
-
-_FUNCTION_CLASSES: dict[str, type] = {
-    "sin": sp.sin, "cos": sp.cos, "tan": sp.tan, "asin": sp.asin, "acos": sp.acos, "atan": sp.atan,
-    "atan2": sp.atan2, "sinh": sp.sinh, "cosh": sp.cosh, "tanh": sp.tanh, "asinh": sp.asinh, "acosh": sp.acosh,
-    "atanh": sp.atanh, "erf": sp.erf, "erfc": sp.erfc, "expm1": expm1, "log1p": log1p, "hypot": hypot,
-    "logaddexp": logaddexp, "log2": log2, "exp2": exp2, "log10": log10, "cbrt": Cbrt,
-}
 
 
 def count_ops(e: Any) -> int:

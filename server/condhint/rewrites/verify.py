@@ -24,10 +24,11 @@ import numpy as np
 from condhint.budget import OverBudget, run_with_budget
 from condhint.config import Config
 from condhint.expr import INPUT, Node, topological
-from condhint.numeric.analysis import (digits_of, keep_where_guards_hold, metrics, reference_values, rounds,
-                                       site_ranges)
+from condhint.numeric.analysis import digits_of, keep_where_guards_hold, metrics, rounds, site_ranges
 from condhint.numeric.backends import F64_BACKEND
 from condhint.numeric.evaluate import BudgetExceeded, Deadline, forward, reverse
+from condhint.numeric.formats import Format
+from condhint.numeric.reference import reference_values
 from condhint.numeric.sampling import sample
 from condhint.rewrites import sym
 from condhint.site import Site
@@ -36,7 +37,6 @@ MIN_GAIN = 1.0
 MAX_WORSE = 0.25
 NOISE = 0.5
 EXACT_TOLERANCE = 1e-20
-TINY, HUGE = 2.2250738585072014e-308, 1.7976931348623157e308
 
 
 @dataclass
@@ -58,8 +58,8 @@ class Bench:
     def __init__(self, site: Site, cfg: Config, worst_at: dict[str, float] | None = None) -> None:
         self.site = site
         self.cfg = cfg
-        self.u = cfg.unit_roundoff
-        self.total = -math.log10(self.u)
+        self.format = site.float_format
+        self.u, self.total = self.format.unit_roundoff, self.format.digits
         root = site.root
         self.names = sorted({n.name for n in topological(root) if n.kind == INPUT})  # type: ignore[misc]
         ranges = site_ranges(site, self.names)
@@ -156,8 +156,8 @@ class Bench:
                     continue  # undefined for the original: the candidate may extend it
                 if not _agree(r, c, tol):
                     return Evidence(False, reason=f"not equivalent at {self.at(int(i))}")
-                if not _ordinary(r):
-                    continue  # no binary64 formula can return the true value there
+                if not _ordinary(r, self.format):
+                    continue  # no formula in this format can return the true value there
                 d0 = self._lost(float(self.orig64[i]), r)
                 d1 = self._lost(float(cand64[i]), r)
             before.append(d0)
@@ -187,9 +187,9 @@ class Bench:
         return ", ".join(f"{k} = {v[i]:.6g}" for k, v in self.cols.items())
 
 
-def _ordinary(r: Any) -> bool:
-    """A true value binary64 can represent as a normal number."""
-    return not mpmath.isinf(r) and r != 0 and TINY <= abs(r) <= HUGE
+def _ordinary(r: Any, fmt: Format) -> bool:
+    """A true value the format can represent as a normal number."""
+    return not mpmath.isinf(r) and r != 0 and fmt.smallest_normal <= abs(r) <= fmt.largest
 
 
 def _agree(a: Any, b: Any, tol: float) -> bool:
