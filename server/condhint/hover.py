@@ -15,7 +15,7 @@ from condhint.findings import Finding
 from condhint.messages import num, pct
 from condhint.numeric.analysis import Analysis, analyse
 from condhint.numeric.evaluate import Deadline
-from condhint.numeric.functions import FUNCTIONS
+from condhint.numeric.operations import OPERATIONS
 from condhint.site import Site
 
 _SOURCES = {
@@ -62,7 +62,7 @@ class HoverFacts:
 
 
 def _label(node: Node) -> str:
-    fn = FUNCTIONS.get(node.kind)
+    fn = OPERATIONS.get(node.kind)
     return fn.label if fn else node.kind
 
 

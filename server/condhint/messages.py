@@ -7,7 +7,7 @@ from dataclasses import dataclass
 from condhint.config import Config
 from condhint.expr import Node
 from condhint.numeric.analysis import Analysis
-from condhint.numeric.functions import FUNCTIONS
+from condhint.numeric.operations import OPERATIONS
 from condhint.site import Site
 
 
@@ -41,7 +41,7 @@ def code(text: str) -> str:
 
 
 def label(node: Node) -> str:
-    fn = FUNCTIONS.get(node.kind)
+    fn = OPERATIONS.get(node.kind)
     return fn.label if fn else node.kind
 
 
@@ -108,7 +108,7 @@ def overflow_message(m: Facts) -> str:
 
 def domain_message(m: Facts) -> str:
     a, flagged = m.analysis, m.flagged
-    fn = FUNCTIONS.get(flagged.kind)
+    fn = OPERATIONS.get(flagged.kind)
     dom = f" ({fn.domain})" if fn and fn.domain else ""
     if a.category == "domain-range":
         return (f"{code(flagged.text)} is undefined{dom} on {pct(a.undefined_fraction)} of the declared "

@@ -25,6 +25,7 @@ class Signature:
     min_args: int
     max_args: int | None  # None: no upper limit
     reduces: bool = False  # takes an array and reduces it (sum, prod, …): no such record yet
+    folds: bool = False  # a call with more arguments is folded pairwise from the left (`max(a, b, c)`)
 
     @property
     def fixed(self) -> int | None:
@@ -33,6 +34,7 @@ class Signature:
 
 
 UNARY, BINARY = Signature(1, 1), Signature(2, 2)
+FOLDED = Signature(2, 2, folds=True)  # binary, and variadic calls fold into it
 
 
 @dataclass(frozen=True)
@@ -86,6 +88,7 @@ class Operation:
     sympy_named: SympyForm | None = None  # the sympy function class naming it in rewrites (`expm1`), if any
     spellings: Spellings = Spellings()
     generated: Mapping[str, str] = field(default_factory=dict)  # spelling in generated code per module
+    keeps_integers: bool = False  # integer arguments give an integer result (exact: never reported)
 
     @property
     def arity(self) -> int | None:

@@ -14,8 +14,8 @@ import mpmath
 import numpy as np
 
 from condhint.numeric.backends import _vec as v
-from condhint.numeric.operation import (BINARY, CORRECT, EXACT, UNARY, Array, Operation, Spellings, codegen_class,
-                                        quiet, same_name, sympy_attr)
+from condhint.numeric.operation import (BINARY, CORRECT, EXACT, FOLDED, UNARY, Array, Operation, Spellings,
+                                        codegen_class, quiet, same_name, sympy_attr)
 
 
 def _mp_copysign(a: Any, b: Any) -> Any:
@@ -90,7 +90,7 @@ def _record_list() -> list[Operation]:
                   spellings=Spellings(math=("pow",), numpy=("power", "float_power", "pow"), builtins=("pow",))),
         Operation("neg", "the negation", UNARY, _np(np.negative), lambda a: -a, lambda B, a, o: (-1.0,), EXACT,
                   sympy=lambda sp: lambda a: -a, spellings=Spellings(numpy=("negative",))),
-        Operation("abs", "abs", UNARY, _np(np.abs), v(abs), lambda B, a, o: (B.sign(a[0]),), EXACT,
+        Operation("abs", "abs", UNARY, _np(np.abs), v(abs), lambda B, a, o: (B.sign(a[0]),), EXACT, keeps_integers=True,
                   sympy=_sympy("Abs"), generated={"builtins": "abs"},
                   spellings=Spellings(math=("fabs",), numpy=("abs", "absolute", "fabs"), builtins=("abs",))),
         Operation("sqrt", "sqrt", UNARY, _np(np.sqrt), v(mpmath.sqrt), lambda B, a, o: (0.5 / o,), CORRECT,
@@ -164,7 +164,7 @@ def _record_list() -> list[Operation]:
                   lambda B, a, o: (1.0 / (1.0 - a[0] * a[0]),), domain="−1 < x < 1", valid=lambda x: np.abs(x) < 1,
                   sympy=_sympy("atanh"), sympy_named=_sympy("atanh"), spellings=_inverse("atanh"),
                   generated=same_name("atanh", numpy="arctanh")),
-        Operation("hypot", "hypot", BINARY, _np(np.hypot), v(mpmath.hypot, 2), lambda B, a, o: (a[0] / o, a[1] / o),
+        Operation("hypot", "hypot", FOLDED, _np(np.hypot), v(mpmath.hypot, 2), lambda B, a, o: (a[0] / o, a[1] / o),
                   sympy=lambda sp: lambda a, b: sp.sqrt(a**2 + b**2), sympy_named=_codegen("cfunctions", "hypot"),
                   spellings=_both("hypot"), generated=same_name("hypot")),
         Operation("square", "the square", UNARY, _np(np.square), lambda a: a * a, lambda B, a, o: (2.0 * a[0],),
@@ -193,10 +193,12 @@ def _record_list() -> list[Operation]:
                   sympy=_sympy("floor"), spellings=_both("floor"), generated=same_name("floor")),
         Operation("ceil", "ceil", UNARY, _np(np.ceil), v(mpmath.ceil), lambda B, a, o: (0.0,), EXACT,
                   sympy=_sympy("ceiling"), spellings=_both("ceil"), generated=same_name("ceil")),
-        Operation("min", "min", BINARY, _np(np.minimum), v(min, 2), lambda B, a, o: _sel(B, a[0] <= a[1]), EXACT,
+        Operation("min", "min", FOLDED, _np(np.minimum), v(min, 2), lambda B, a, o: _sel(B, a[0] <= a[1]), EXACT,
+                  keeps_integers=True,
                   sympy=_sympy("Min"), spellings=Spellings(numpy=("minimum", "fmin"), builtins=("min",)),
                   generated={"numpy": "minimum", "builtins": "min"}),
-        Operation("max", "max", BINARY, _np(np.maximum), v(max, 2), lambda B, a, o: _sel(B, a[0] >= a[1]), EXACT,
+        Operation("max", "max", FOLDED, _np(np.maximum), v(max, 2), lambda B, a, o: _sel(B, a[0] >= a[1]), EXACT,
+                  keeps_integers=True,
                   sympy=_sympy("Max"), spellings=Spellings(numpy=("maximum", "fmax"), builtins=("max",)),
                   generated={"numpy": "maximum", "builtins": "max"}),
     ]

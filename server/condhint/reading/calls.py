@@ -5,7 +5,7 @@ import ast
 from typing import TYPE_CHECKING
 
 from condhint.expr import CONST, SELECT, Node
-from condhint.numeric.functions import FUNCTIONS
+from condhint.numeric.operations import OPERATIONS
 from condhint.reading.names import INT_BUILTINS, literal_number
 
 if TYPE_CHECKING:
@@ -41,15 +41,15 @@ def convert_call(conv: "Converter", e: ast.Call) -> Node | None:
         lx = Node("log", (args[0],), span=span, text=source.segment(span))
         lb = Node("log", (args[1],), span=span, text=f"log({args[1].text})")
         return conv.node("div", (lx, lb), e)
-    if fid in ("min", "max", "hypot") and len(args) > 2:  # folded pairwise, left to right
+    op = OPERATIONS[fid]
+    if op.signature.folds and len(args) > 2:  # folded pairwise, left to right
         acc = args[0]
         for n in args[1:]:
             acc = conv.node(fid, (acc, n), e)
         return acc
-    if len(args) != FUNCTIONS[fid].arity:
+    if len(args) != op.arity:
         return conv.opaque(e)
-    is_int = fid in ("abs", "min", "max") and all(n.is_int for n in args)
-    return conv.node(fid, tuple(args), e, is_int)
+    return conv.node(fid, tuple(args), e, op.keeps_integers and all(n.is_int for n in args))
 
 
 def _where(conv: "Converter", e: ast.Call) -> Node | None:

@@ -11,7 +11,7 @@ import bisect
 from typing import TYPE_CHECKING, Iterable
 
 from condhint.expr import CONST, INPUT, Node, Span, topological
-from condhint.numeric.functions import FUNCTIONS
+from condhint.numeric.operations import OPERATIONS
 from condhint.reading.comments import Clauses
 from condhint.reading.expressions import BINOPS, Converter
 from condhint.reading.loops import walk_loop
@@ -308,7 +308,7 @@ class Walker:
         if root.is_int or root.span is None or conv.stmt is None:
             return
         nodes = topological(root)
-        if not any(FUNCTIONS.get(n.kind) is not None and FUNCTIONS[n.kind].rounds for n in nodes):
+        if not any(OPERATIONS.get(n.kind) is not None and OPERATIONS[n.kind].rounds for n in nodes):
             return
         ranges, filters = site_ranges(nodes, conv.ctx)
         bindings = {id(n): self._bindings[id(n)] for n in nodes if id(n) in self._bindings}

@@ -21,7 +21,7 @@ from condhint.messages import num
 from condhint.numeric.analysis import Analysis, analyse
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
 from condhint.numeric.formats import BINARY64
-from condhint.numeric.functions import FUNCTIONS
+from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.analysis import keep_where_guards_hold
 from condhint.review.profile import Profile, input_names, profile, swept_input, sweep
 from condhint.site import Site
@@ -120,7 +120,7 @@ def _formula(site: Site, a: Analysis, cfg: Config, finding: Finding | None) -> t
 
 
 def _label(node: Any) -> str:
-    fn = FUNCTIONS.get(node.kind)
+    fn = OPERATIONS.get(node.kind)
     return fn.label if fn else node.kind
 
 
