@@ -123,3 +123,17 @@ def test_node_at_finds_the_innermost_operation():
     assert node.text == "rate * dt" and site.root.text == "exp(rate * dt) - 1"
     assert node.span.line == line
     assert result.node_at(1, 3) is None  # the docstring
+
+
+def test_an_edit_to_a_callee_reanalyses_its_callers():
+    # A unit's key holds the definitions it calls: when `helper` changes, `caller` is analysed again (what it
+    # computes may depend on it), while the module-level code and `other` are reused.
+    text = ("import math\n\ndef helper(x):\n    return x * 2.0\n\n"
+            "def caller(y):\n    return math.exp(helper(y)) - 1\n\n"
+            "def other(z):\n    return math.sqrt(z + 1.0) - 1.0\n")
+    cache, units = AnalysisCache(), UnitCache()
+    first = analyse_document(text, "c.py", CFG, cache, units)
+    assert (first.analysed, first.reused) == (4, 0)
+    second = analyse_document(text.replace("x * 2.0", "x * 3.0"), "c.py", CFG, cache, units)
+    assert (second.analysed, second.reused) == (2, 2)
+    assert [u.unit.name for u in second.units] == ["<module>", "helper", "caller", "other"]
