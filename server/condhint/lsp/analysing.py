@@ -120,6 +120,8 @@ class Analyser:
             return
         if state.generation != generation or state.closed:
             return  # never publish results computed for an older version
+        if result.index is not None:
+            result.index.release()  # parsed again if a fix needs it: each version's tree is not kept
         state.result, state.result_version, state.result_lines = result, generation, lines
         state.result_doc_version = version
         state.diagnostics = None

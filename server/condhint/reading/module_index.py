@@ -12,7 +12,8 @@ import ast
 import hashlib
 import re
 import warnings
-from dataclasses import dataclass, field
+from collections import OrderedDict
+from dataclasses import dataclass, replace
 from functools import cached_property
 
 from condhint.expr import Node, Span
@@ -43,27 +44,71 @@ class Unit:
     name: str  # MODULE, or the definition's name
     start: int  # first and last line (1-based, inclusive); the module-level code spans the whole text
     end: int
-    stmt: ast.stmt | None = field(default=None, compare=False, repr=False)  # None: the module-level code
 
     @property
     def is_module(self) -> bool:
-        return self.stmt is None
+        return self.name == MODULE and self.start == 1
 
     def owns(self, line: int) -> bool:
         return self.start <= line <= self.end
 
 
-@dataclass
+@dataclass(frozen=True)
+class UnitFacts:
+    """What one unit says about the whole module, memoised by the unit's text (an edit elsewhere reuses it)."""
+
+    names: Names  # what it imports and defines (not merged: see `Names.merged`)
+    globals: frozenset[str]  # names it declares `global` or `nonlocal`
+    called: frozenset[str]  # names it calls (`f(…)`)
+    comments: tuple[Clauses, ...]  # its `# condhint:` comments, lines counted from the unit's first line
+
+
 class ModuleIndex:
-    text: str
-    source: Source
-    tree: ast.Module
-    names: Names
-    comments: list[Clauses]
-    constants: dict[str, Node] = field(default_factory=dict)  # names bound once at module level to constants
-    units: list[Unit] = field(default_factory=list)  # the module-level code first, then definitions in order
-    problem: SyntaxProblem | None = None  # tolerant reading: why the original text does not parse
-    _calls: dict[Unit, frozenset[str]] = field(default_factory=dict, repr=False)
+    """A text read once. The syntax tree can be released (`release`) and is parsed again when next needed, so
+    an index kept by an editor for hover and fixes does not hold every version's tree."""
+
+    def __init__(self, text: str, tree: ast.Module, problem: SyntaxProblem | None = None) -> None:
+        self.text = text
+        self.source = Source(text)
+        self.problem = problem  # tolerant reading: why the original text does not parse
+        self._tree: ast.Module | None = tree
+        self.units = _units(tree, len(self.source.lines))  # the module-level code first, then definitions
+        facts = [unit_facts(self.unit_text(u), self._statements(u)) for u in self.units]
+        self.facts = dict(zip(self.units, facts))
+        self.names = Names.merged([f.names for f in facts])
+        self.comments = [replace(c, line=c.line + u.start - 1) for u, f in zip(self.units, facts) for c in f.comments]
+        self.comments.sort(key=lambda c: c.line)
+        self.globals = frozenset().union(*(f.globals for f in facts))
+        self.constants: dict[str, Node] = {}  # names bound once at module level to constants
+        from condhint.reading.statements import module_constants  # the constants are read like any expression
+
+        self.constants = module_constants(self)
+
+    @property
+    def tree(self) -> ast.Module:
+        if self._tree is None:
+            self._tree, _ = parse(self.text)  # the read text always parses
+            self.__dict__.pop("_by_start", None)
+        return self._tree  # type: ignore[return-value]
+
+    def release(self) -> None:
+        """Drop the syntax tree (it is parsed again when needed)."""
+        self._tree = None
+        self.__dict__.pop("_by_start", None)
+
+    @cached_property
+    def _by_start(self) -> dict[int, ast.stmt]:
+        return {s.lineno: s for s in self.tree.body if isinstance(s, DEFS)}
+
+    def statement(self, unit: Unit) -> ast.stmt | None:
+        """A definition's statement (None for the module-level code)."""
+        return None if unit.is_module else self._by_start.get(unit.start)
+
+    def _statements(self, unit: Unit) -> list[ast.stmt]:
+        if unit.is_module:
+            return [s for s in self.tree.body if not isinstance(s, DEFS)]
+        stmt = self.statement(unit)
+        return [stmt] if stmt is not None else []
 
     @cached_property
     def walrus(self) -> bool:
@@ -86,11 +131,7 @@ class ModuleIndex:
 
     def calls(self, unit: Unit) -> frozenset[str]:
         """The top-level definitions a unit calls by name."""
-        found = self._calls.get(unit)
-        if found is None:
-            body = self.tree.body if unit.stmt is None else [unit.stmt]
-            found = self._calls[unit] = _calls(body, set(self._definitions), skip_defs=unit.is_module)
-        return found
+        return self.facts[unit].called & self._definitions.keys()
 
     def dependencies(self, unit: Unit) -> list[Unit]:
         """The top-level definitions `unit` calls, directly or through others (each once; recursion is fine)."""
@@ -164,29 +205,39 @@ def read_module(text: str, tolerant: bool = False) -> tuple[ModuleIndex | None, 
         tree, _ = parse(read)
     if tree is None:
         return None, problem
-    from condhint.reading.statements import module_constants  # the constants are read like any expression
-
-    index = ModuleIndex(read, Source(read), tree, Names.of_module(tree), find_comments(read), problem=problem)
-    index.constants = module_constants(index)
-    index.units = _units(tree, len(index.source.lines))
-    return index, problem
+    return ModuleIndex(read, tree, problem), problem
 
 
 def _units(tree: ast.Module, n_lines: int) -> list[Unit]:
     units = [Unit(MODULE, 1, max(n_lines, 1))]
-    units += [Unit(s.name, s.lineno, s.end_lineno or s.lineno, s) for s in tree.body if isinstance(s, DEFS)]
+    units += [Unit(s.name, s.lineno, s.end_lineno or s.lineno) for s in tree.body if isinstance(s, DEFS)]
     return units
 
 
-def _calls(body: list[ast.stmt], top: set[str], skip_defs: bool) -> frozenset[str]:
-    found: set[str] = set()
-    stack: list[ast.AST] = [s for s in body if not (skip_defs and isinstance(s, DEFS))]
-    while stack:
-        node = stack.pop()
-        if isinstance(node, ast.Call) and isinstance(node.func, ast.Name) and node.func.id in top:
-            found.add(node.func.id)
-        stack.extend(ast.iter_child_nodes(node))
-    return frozenset(found)
+_FACTS: OrderedDict[str, UnitFacts] = OrderedDict()
+_FACTS_KEPT = 4096
+
+
+def unit_facts(text: str, statements: list[ast.stmt]) -> UnitFacts:
+    """The facts of a unit with this text and these statements (memoised by the text)."""
+    hit = _FACTS.get(text)
+    if hit is not None:
+        _FACTS.move_to_end(text)
+        return hit
+    globals_: set[str] = set()
+    called: set[str] = set()
+    for stmt in statements:
+        for node in ast.walk(stmt):
+            if isinstance(node, ast.Call) and isinstance(node.func, ast.Name):
+                called.add(node.func.id)
+            elif isinstance(node, (ast.Global, ast.Nonlocal)):
+                globals_.update(node.names)
+    facts = UnitFacts(Names.of_statements(statements), frozenset(globals_), frozenset(called),
+                      tuple(find_comments(text)))
+    _FACTS[text] = facts
+    while len(_FACTS) > _FACTS_KEPT:
+        _FACTS.popitem(last=False)
+    return facts
 
 
 # ---- reading a text that does not parse ------------------------------------------------------------------

@@ -67,51 +67,76 @@ class Names:
 
     @classmethod
     def of_module(cls, tree: ast.Module) -> "Names":
+        return cls.merged([cls.of_statements(tree.body)])
+
+    @classmethod
+    def merged(cls, parts: list["Names"]) -> "Names":
+        """The names in force in a module read in parts (in order): builtins first, definitions shadow."""
         names = cls()
         names.functions.update(FUNCTION_SPELLINGS["builtins"])
-        for node in ast.walk(tree):
-            if isinstance(node, (ast.Import, ast.ImportFrom)):
-                mods = [a.name for a in node.names] if isinstance(node, ast.Import) else [node.module or ""]
-                if any(m == "mpmath" or m.startswith("mpmath.") for m in mods):
-                    names.uses_mpmath = True
-                if any(m == "sympy" or m.startswith("sympy.") for m in mods):
-                    names.uses_sympy = True
-                    if isinstance(node, ast.ImportFrom) and node.module == "sympy.abc":
-                        names.symbolic.update(a.asname or a.name for a in node.names)
-            if isinstance(node, ast.Import):
-                for alias in node.names:
-                    mod = alias.name
-                    if mod in ("math", "numpy", "scipy.special", "cmath"):
-                        local = alias.asname or mod.split(".")[0]
-                        names.modules[local] = "numpy" if mod == "numpy" else mod
-                    elif mod == "scipy" and alias.asname is None:
-                        names.modules["scipy"] = "scipy"
-            elif isinstance(node, ast.ImportFrom) and node.module and node.level == 0:
-                mod = node.module
-                if mod == "scipy":
-                    for alias in node.names:
-                        if alias.name == "special":
-                            names.modules[alias.asname or "special"] = "scipy.special"
-                    continue
-                if mod not in FUNCTION_SPELLINGS:
-                    continue
-                spell, consts = FUNCTION_SPELLINGS[mod], CONSTANTS.get(mod, {})
-                for alias in node.names:
-                    if alias.name == "*":
-                        names.functions.update({k: v for k, v in spell.items() if v})
-                        names.constants.update(consts)
-                        continue
-                    local = alias.asname or alias.name
-                    if spell.get(alias.name):
-                        names.functions[local] = spell[alias.name]
-                    elif alias.name in consts:
-                        names.constants[local] = consts[alias.name]
-            elif isinstance(node, (ast.FunctionDef, ast.AsyncFunctionDef, ast.ClassDef)):
-                names.shadowed.add(node.name)
+        for part in parts:
+            names.modules.update(part.modules)
+            names.functions.update(part.functions)
+            names.constants.update(part.constants)
+            names.shadowed |= part.shadowed
+            names.symbolic |= part.symbolic
+            names.uses_sympy |= part.uses_sympy
+            names.uses_mpmath |= part.uses_mpmath
         for name in names.shadowed:
             names.functions.pop(name, None)
             names.constants.pop(name, None)
         return names
+
+    @classmethod
+    def of_statements(cls, statements: list[ast.stmt]) -> "Names":
+        """What some statements import and define (every level inside them), before merging."""
+        names = cls()
+        for stmt in statements:
+            for node in ast.walk(stmt):
+                if isinstance(node, (ast.Import, ast.ImportFrom)):
+                    names._read_import(node)
+                elif isinstance(node, (ast.FunctionDef, ast.AsyncFunctionDef, ast.ClassDef)):
+                    names.shadowed.add(node.name)
+        return names
+
+    def _read_import(self, node: ast.Import | ast.ImportFrom) -> None:
+        mods = [a.name for a in node.names] if isinstance(node, ast.Import) else [node.module or ""]
+        if any(m == "mpmath" or m.startswith("mpmath.") for m in mods):
+            self.uses_mpmath = True
+        if any(m == "sympy" or m.startswith("sympy.") for m in mods):
+            self.uses_sympy = True
+            if isinstance(node, ast.ImportFrom) and node.module == "sympy.abc":
+                self.symbolic.update(a.asname or a.name for a in node.names)
+        if isinstance(node, ast.Import):
+            for alias in node.names:
+                mod = alias.name
+                if mod in ("math", "numpy", "scipy.special", "cmath"):
+                    local = alias.asname or mod.split(".")[0]
+                    self.modules[local] = "numpy" if mod == "numpy" else mod
+                elif mod == "scipy" and alias.asname is None:
+                    self.modules["scipy"] = "scipy"
+            return
+        if not node.module or node.level != 0:
+            return
+        mod = node.module
+        if mod == "scipy":
+            for alias in node.names:
+                if alias.name == "special":
+                    self.modules[alias.asname or "special"] = "scipy.special"
+            return
+        if mod not in FUNCTION_SPELLINGS:
+            return
+        spell, consts = FUNCTION_SPELLINGS[mod], CONSTANTS.get(mod, {})
+        for alias in node.names:
+            if alias.name == "*":
+                self.functions.update({k: v for k, v in spell.items() if v})
+                self.constants.update(consts)
+                continue
+            local = alias.asname or alias.name
+            if spell.get(alias.name):
+                self.functions[local] = spell[alias.name]
+            elif alias.name in consts:
+                self.constants[local] = consts[alias.name]
 
     def not_binary64(self, value: ast.expr) -> bool:
         """`symbols("x y")`, `sp.Symbol("x")`, `QQ(1, 3)` in a file that imports sympy, `mpf(2)` in one that

@@ -44,13 +44,14 @@ class Walker:
 
     # ---- units and scopes -------------------------------------------------------------------------------
     def walk(self, unit: "Unit") -> list[Site]:
-        if unit.stmt is None:
+        stmt = self.index.statement(unit)
+        if unit.is_module:
             body = self.index.tree.body
             self._scope(MODULE, body, {}, self._scope_clauses(body, []), {})
-        elif isinstance(unit.stmt, ast.ClassDef):
-            self._class(unit.stmt, MODULE, {})
-        else:
-            self.function(unit.stmt, unit.stmt.name, {})  # type: ignore[arg-type]
+        elif isinstance(stmt, ast.ClassDef):
+            self._class(stmt, MODULE, {})
+        elif isinstance(stmt, FUNCS):
+            self.function(stmt, stmt.name, {})
         # A value inlined into a later site is analysed there, where its error matters; its own site would
         # only repeat that work (and report losses the consumer does not feel).
         inner: set[int] = set()
@@ -344,10 +345,8 @@ def module_constants(index: "ModuleIndex") -> dict[str, Node]:
             counts[target] = counts.get(target, 0) + 1
             values[target] = value
     names.symbolic.update(symbolic - set(counts))
-    for node in ast.walk(tree):
-        if isinstance(node, (ast.Global, ast.Nonlocal)):
-            for n in node.names:
-                counts[n] = 2
+    for n in index.globals:  # rebound through `global` (or `nonlocal`) somewhere: not a constant
+        counts[n] = 2
     walker = Walker(index)
     consts: dict[str, Node] = {}
     for name, value in values.items():
