@@ -9,6 +9,7 @@ from dataclasses import replace
 from condhint.config import Config
 from condhint.engine import DEFAULT_CACHE, AnalysisCache, ModuleAnalysis, UnitCache, analyse_module
 from condhint.findings import FileReport, Finding, Fix
+from condhint.reading.module_index import read_module
 
 
 def rewrites() -> types.ModuleType | None:
@@ -36,7 +37,11 @@ def fixes_for(finding: Finding, ma: ModuleAnalysis, cfg: Config, cache: Analysis
     def reanalyse(text: str) -> FileReport:
         return analyse_module(text, ma.report.path, quiet, cache or DEFAULT_CACHE, units=units).report
 
-    subject = package.Subject(finding, site, unit.analyses.get(id(site)), ma.index, unit.constants, reanalyse)
+    # The definition holding the finding with the module-level code around it: all a fix can affect, and a
+    # small syntax tree to write code against (the whole module's is not kept by the language server).
+    focused, _ = read_module(ma.index.focused_text(finding.span.line))
+    subject = package.Subject(finding, site, unit.analyses.get(id(site)), focused or ma.index, unit.constants,
+                              reanalyse)
     return package.fixes_for(subject, cfg) if seconds is None else package.fixes_for(subject, cfg, seconds)
 
 

@@ -158,6 +158,16 @@ class ModuleIndex:
             out[u.start - 1:u.end] = [""] * (u.end - u.start + 1)
         return "\n".join(out)
 
+    def focused_text(self, line: int) -> str:
+        """The text with every top-level definition blanked but the one holding `line` (line numbers kept):
+        what a change at `line` can affect, with the module-level code it reads."""
+        lines = list(self.source.lines)
+        keep = self.unit_at(line)
+        for u in self.units[1:]:
+            if u != keep:
+                lines[u.start - 1:u.end] = [""] * (u.end - u.start + 1)
+        return "\n".join(lines)
+
     @cached_property
     def context_key(self) -> str:
         """What every unit reads from the rest of the module: names, aliases and module constants."""
