@@ -12,7 +12,7 @@ from dataclasses import dataclass, fields, replace
 from pathlib import Path
 from typing import Any, Mapping
 
-from condhint.numeric.formats import BINARY64, Format, format_named
+from condhint.numeric.formats import Format, format_named
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -48,7 +48,9 @@ class Config:
     default_range: tuple[float, float] = (1e-6, 1e6)
     samples: int = 256  # binary64 samples per site
     reference_samples: int = 40  # of which this many are re-evaluated in mpmath when a site looks suspicious
-    float_format: str = "float64"  # a name of a `numeric.formats` record; only binary64 is evaluated so far
+    # The format of values whose type the code does not show (parameters, results of unknown calls): "float64"
+    # means Python floats; "float32" suits code whose arrays come typed from elsewhere (tensors of another library).
+    float_format: str = "float64"
     include: tuple[str, ...] = ("*.py", "*.ipynb")
     exclude: tuple[str, ...] = ()
     min_severity: str = "info"  # findings below this are not reported at all
@@ -127,7 +129,7 @@ def _check(cfg: Config, key: str, value: Any) -> Config:
             raise ValueError(f"expected one of {', '.join(SEVERITIES)}")
         return replace(cfg, **{key: value})
     if key == "float_format":
-        return replace(cfg, float_format=_evaluated_format(value))
+        return replace(cfg, float_format=_format_name(value))
     if key in ("include", "exclude"):
         if isinstance(value, str):
             value = [value]
@@ -145,14 +147,11 @@ def _check(cfg: Config, key: str, value: Any) -> Config:
     raise ValueError("unknown setting")
 
 
-def _evaluated_format(value: Any) -> str:
-    """A format name condhint can evaluate in. Digits in another format must come from evaluating in it, never
-    from rescaling binary64 errors (which would hide real losses), and only binary64 evaluation exists so far."""
+def _format_name(value: Any) -> str:
+    """A name of a number format record (`numeric.formats`): float64, float32, float16, bfloat16 or an alias."""
     if not isinstance(value, str):
         raise ValueError("expected a format name such as \"float64\"")
-    if format_named(value) is not BINARY64:
-        raise ValueError(f"float_format = \"{value}\" is not supported yet: condhint evaluates in binary64 only; "
-                         "reduced-precision evaluation is planned — remove the setting")
+    format_named(value)  # raises with the known names
     return value
 
 

@@ -218,7 +218,7 @@ def analyse_unit(index: ModuleIndex, unit: Unit, key: str, path: str, cfg: Confi
                  budget: _Budget) -> UnitAnalysis:
     """Read one unit into sites, analyse each, and keep the worst finding per flagged range and code."""
     out = UnitAnalysis(unit, key, constants=index.constants)
-    walker = Walker(index, cfg.max_site_nodes)
+    walker = Walker(index, cfg.max_site_nodes, cfg.format)
     problems: list[Finding] = []
     try:
         sites = walker.walk(unit)

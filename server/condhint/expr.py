@@ -38,7 +38,7 @@ SELECT = "select"  # piecewise: args (cond, if_true, if_false)
 class Node:
     """One operation or leaf. `kind` is INPUT, CONST, COMPARE, SELECT or an operation id (`numeric.operations`)."""
 
-    __slots__ = ("kind", "args", "name", "value", "exact", "span", "is_int", "text", "format", "_key", "__weakref__")
+    __slots__ = ("kind", "args", "name", "value", "exact", "span", "is_int", "text", "format", "weak", "_key", "__weakref__")
 
     def __init__(
         self,
@@ -52,6 +52,7 @@ class Node:
         is_int: bool = False,
         text: str = "",
         format: Format = BINARY64,
+        weak: bool = True,
     ) -> None:
         self.kind = kind
         self.args = args
@@ -62,6 +63,7 @@ class Node:
         self.is_int = is_int
         self.text = text  # source text of the expression, for messages
         self.format = format  # the number format the operation computes in (a leaf: the format it is held in)
+        self.weak = weak  # a Python number (numpy ≥ 2 does not let it widen a numpy value: NEP 50)
         self._key: str | None = None
 
     def __repr__(self) -> str:

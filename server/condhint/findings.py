@@ -61,6 +61,7 @@ class Finding:
     result_uncertainty: float | None = None  # relative, from declared input uncertainties
     suppressed: bool = False
     cell: int | None = None  # notebooks: the 1-based cell the span's lines count within
+    format: str = "binary64"  # the number format the flagged operation's result is counted in
     origin: str = field(default="", repr=False)  # the analysed site: see `engine.ModuleAnalysis.site_of`
 
     @property
@@ -94,7 +95,7 @@ class Finding:
             "digits_lost": r(self.digits_lost), "predicted_digits_lost": r(self.predicted_digits_lost),
             "measured_digits_lost": r(self.measured_digits_lost),
             "kappa": None if self.kappa is None else float(f"{self.kappa:.3g}"),
-            "kappa_formula": self.kappa_formula,
+            "kappa_formula": self.kappa_formula, "format": self.format,
             "inputs": {k: {"low": v.low, "high": v.high, "uncertainty": v.uncertainty, "source": v.source}
                        for k, v in self.inputs.items()},
             "worst_at": {k: float(f"{v:.6g}") for k, v in self.worst_at.items()},

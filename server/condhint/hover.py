@@ -12,7 +12,8 @@ from condhint.config import Config
 from condhint.engine import DEFAULT_CACHE, AnalysisCache
 from condhint.expr import Node, topological
 from condhint.findings import Finding
-from condhint.messages import num, pct
+from condhint.messages import counted_in, num, pct
+from condhint.numeric.formats import format_named
 from condhint.numeric.analysis import Analysis, analyse
 from condhint.numeric.evaluate import Deadline
 from condhint.numeric.operations import OPERATIONS
@@ -58,6 +59,7 @@ class HoverFacts:
     finding: Finding | None = None
     finding_around: bool = False  # the finding is on an enclosing operation, not on this expression
     formula: str | None = None
+    format: str = "binary64"  # the format the expression's result computes in (a `numeric.formats` name)
     formula_state: str = "off"  # "ready", "pending", "unavailable", "off"
 
 
@@ -89,7 +91,7 @@ def describe(site: Site, node: Node, analysis: Analysis, cfg: Config, finding: F
     return HoverFacts(
         text=" ".join(node.text.split()), kappa=analysis.kappa, kappa_median=analysis.kappa_median,
         kappa_at=analysis.kappa_at, predicted=analysis.predicted, measured=analysis.measured,
-        total_digits=site.float_format.digits, samples=analysis.n_samples, limiting=limiting,
+        total_digits=node.format.digits, format=node.format.name, samples=analysis.n_samples, limiting=limiting,
         limiting_line=limiting_line, inputs=inputs, result_uncertainty=analysis.result_uncertainty,
         finding=finding)
 
@@ -132,7 +134,7 @@ def markdown(facts: HoverFacts) -> str:
     measured = (f"{_digits(facts.measured)} measured against mpmath, " if facts.measured is not None
                 else "not measured (binary64 screening found nothing to check), ")
     out.append(f"- digits lost to rounding: {measured}{_digits(facts.predicted)} predicted "
-               f"(of {facts.total_digits:.0f})")
+               f"(of {counted_in(format_named(facts.format))})")
     if facts.limiting:
         line = f" (line {facts.limiting_line})" if facts.limiting_line else ""
         out.append(f"- accuracy is limited by {facts.limiting}{line}")

@@ -6,6 +6,7 @@ from dataclasses import dataclass
 
 from condhint.config import Config
 from condhint.expr import Node
+from condhint.numeric.formats import BINARY64, Format
 from condhint.numeric.analysis import Analysis
 from condhint.numeric.operations import OPERATIONS
 from condhint.site import Site
@@ -35,6 +36,16 @@ def where(at: dict[str, float]) -> str:
     return ", ".join(f"{k} ≈ {num(v, 3)}" for k, v in at.items()) or "its constant inputs"
 
 
+def counted_in(fmt: Format) -> str:
+    """How many digits a result carries, naming the format when it is not binary64: "16 digits",
+    "7.2 digits in float32"."""
+    return f"{fmt.digits:.0f} digits" if fmt is BINARY64 else f"{fmt.digits:.1f} digits in {fmt.short}"
+
+
+def in_format(fmt: Format) -> str:
+    return "" if fmt is BINARY64 else f" in {fmt.short}"
+
+
 def code(text: str) -> str:
     text = " ".join(text.split())
     return f"`{text if len(text) <= 60 else text[:57] + '…'}`"
@@ -55,9 +66,6 @@ class Facts:
     sources_of_error: list[Node]
     cfg: Config
 
-    @property
-    def total_digits(self) -> float:
-        return self.site.float_format.digits
 
     @property
     def share(self) -> str:
@@ -76,7 +84,7 @@ def formula_message(m: Facts) -> str:
         what = f"{label(flagged)} magnifies the rounding error of {', '.join(code(s.text) for s in srcs)}"
     else:
         what = f"the rounding in {label(flagged)} is magnified downstream"
-    return (f"{code(flagged.text)} loses {digits(a.digits)} of {m.total_digits:.0f} digits at {where(a.worst_at)} "
+    return (f"{code(flagged.text)} loses {digits(a.digits)} of {counted_in(m.site.float_format)} at {where(a.worst_at)} "
             f"(predicted {digits(a.worst_predicted)}): {what}. "
             + (f"The result itself needs only κ ≈ {num(a.worst_kappa)}, so this loss is avoidable by rewriting "
                "the formula" if (a.worst_kappa or 0) < 10 ** ((a.digits or 0) - 1) else
@@ -100,7 +108,7 @@ def inherent_message(m: Facts) -> str:
 
 def overflow_message(m: Facts) -> str:
     a = m.analysis
-    what = "underflows to 0" if a.underflow else "overflows to inf"
+    what = ("underflows to 0" if a.underflow else "overflows to inf") + in_format(m.flagged.format)
     return (f"{code(m.flagged.text)} {what} at {where(a.worst_at)} although the result of "
             f"{code(m.site.root.text)} is an ordinary number there, so the code returns "
             f"{'0, inf or nan' if a.underflow else 'inf or nan'} instead.")

@@ -33,7 +33,7 @@ def finding_for(site: Site, a: Analysis, cfg: Config, path: str, origin: str = "
         predicted_digits_lost=a.worst_predicted, measured_digits_lost=a.worst_measured,
         kappa=a.worst_kappa if a.worst_kappa is not None else a.kappa, inputs=inputs, worst_at=a.worst_at,
         fraction_affected=a.fraction, related=related, scope=site.scope, result_uncertainty=a.result_uncertainty,
-        origin=origin,
+        origin=origin, format=site.float_format.name,
     )
 
 

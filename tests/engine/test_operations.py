@@ -65,7 +65,7 @@ def test_every_record_has_the_fields_other_modules_read() -> None:
     for op in RECORDS:
         assert op.arity == op.signature.fixed and op.rounds == (op.rounding.ulps > 0) and op.f64 is op.ufunc
         assert all(hasattr(op, name) for name in ("label", "domain", "valid", "mp", "partials"))
-        assert any(op.spellings.by_module().values()), f"{op.id} cannot be spelled"
+        assert any(op.spellings.by_module().values()) or not op.written, f"{op.id} cannot be spelled"
 
 
 @pytest.mark.parametrize("op", RECORDS, ids=ids)
@@ -105,8 +105,14 @@ def test_evaluation_in_a_format_is_within_the_stated_ulps_of_that_format(op: Ope
         ulp32 = mpmath.mpf(float(np.spacing(np.float32(abs(exact)))))
         assert abs(mpmath.mpf(float(out[0])) - exact) <= op.rounding.ulps * ulp32, (p32, out[0], exact)
         assert op.evaluate(BINARY64, *(np.array([x]) for x in p))[0] == op.f64(*(np.array([x]) for x in p))[0]
-    with pytest.raises(NotImplementedError, match="ml_dtypes"):
-        op.evaluate(BFLOAT16, *(np.array([1.0]) for _ in range(op.arity)))
+    # bfloat16 through ml_dtypes' own arithmetic (its ufunc loops): the same values as the record gives
+    import ml_dtypes
+
+    ones = [np.array([1.5]) for _ in range(op.arity)]
+    with np.errstate(all="ignore"):
+        expected = np.asarray(op.ufunc(*(a.astype(ml_dtypes.bfloat16) for a in ones))).astype(ml_dtypes.bfloat16)
+        got = op.evaluate(BFLOAT16, *ones)
+    assert got.dtype == np.dtype(ml_dtypes.bfloat16) and np.array_equal(got, expected, equal_nan=True)
 
 
 def test_evaluation_in_binary32_matches_numpy_float32() -> None:

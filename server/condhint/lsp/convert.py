@@ -16,6 +16,7 @@ from condhint.expr import Span
 from condhint.findings import Finding
 from condhint.lsp.textedits import Replacement
 from condhint.messages import digits, num
+from condhint.numeric.formats import format_named
 
 SOURCE = "condhint"
 SEVERITY = {
@@ -107,9 +108,10 @@ def to_lsp_hover(text: str, span: Span | None, pos: Positions, markdown: bool) -
 
 def inlay_label(f: Finding) -> str:
     """A compact tag after a flagged expression: digits lost, or κ where the loss is inherent."""
+    fmt = "" if f.format == "binary64" else f" ({format_named(f.format).short})"
     if f.category == "inherent" and f.kappa is not None:
-        return f"κ≈{num(f.kappa, 1)}"
-    return f"−{digits(f.digits_lost)} digits"
+        return f"κ≈{num(f.kappa, 1)}{fmt}"
+    return f"−{digits(f.digits_lost)} digits{fmt}"
 
 
 def to_lsp_inlay_hint(f: Finding, pos: Positions) -> types.InlayHint:

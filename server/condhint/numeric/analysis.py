@@ -17,6 +17,7 @@ import numpy as np
 from condhint.config import Config
 from condhint.expr import CONST, INPUT, Node, const_rounds, topological
 from condhint.numeric.backends import F64_BACKEND, MP_BACKEND
+from condhint.numeric.formats import BINARY64
 from condhint.numeric.evaluate import Deadline, differentiable, forward, reverse
 from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.reference import reference_values, relative_error
@@ -74,6 +75,8 @@ def rounds(node: Node) -> bool:
     fn = OPERATIONS.get(node.kind)
     if fn is None or not fn.rounds or node.is_int:
         return False
+    if node.kind == "cast":  # a conversion rounds only into a narrower format
+        return node.format.narrower_than(node.args[0].format)
     if node.kind in ("mul", "div"):  # scaling by a power of two is exact
         other = node.args[1] if node.kind == "div" else next((a for a in node.args if a.kind == CONST), None)
         if other is not None and other.kind == CONST and other.value and math.isfinite(other.value):
@@ -139,8 +142,10 @@ def _ratio(v: Any, a: Any, f: Any, backend: Any) -> np.ndarray:
 
 def metrics(nodes: list[Node], vals: dict[int, Any], adj: dict[int, Any], names: list[str],
              rounding: list[int], backend: Any) -> tuple[np.ndarray, dict[str, np.ndarray], np.ndarray, dict[int, np.ndarray]]:
-    """κ, κᵢ, rounding amplification A and its terms, per sample."""
+    """κ, κᵢ, rounding amplification A and its terms, per sample. A counts in units of the result's own unit
+    roundoff: a rounding in another format weighs by the ratio of its unit roundoff to the result's."""
     f = vals[id(nodes[-1])]
+    u = nodes[-1].format.unit_roundoff
 
     def relative(node: Node) -> np.ndarray:  # |v ∂f/∂v / f|
         a = adj.get(id(node))
@@ -149,6 +154,9 @@ def metrics(nodes: list[Node], vals: dict[int, Any], adj: dict[int, Any], names:
     by_name = {n.name: n for n in nodes if n.kind == INPUT}
     kappa_i = {name: relative(by_name[name]) for name in names}
     terms = {k: relative(nodes[k]) for k in rounding}
+    for k in rounding:
+        if nodes[k].format.unit_roundoff != u:
+            terms[k] = terms[k] * (nodes[k].format.unit_roundoff / u)
     kappa = sum(kappa_i.values()) if kappa_i else np.zeros(len(f))
     amp = sum(terms.values()) if terms else np.zeros(len(f))
     return np.asarray(kappa, dtype=float), kappa_i, np.asarray(amp, dtype=float), terms
@@ -200,7 +208,8 @@ def analyse(site: Site, cfg: Config, root: Node | None = None, deadline: Deadlin
     names = sorted({n.name for n in nodes if n.kind == INPUT})  # type: ignore[misc]
     ranges = site_ranges(site, names)
     seed = zlib.crc32(root.key().encode())
-    cols, bounds = sample(ranges, names, cfg.samples, seed, cfg.default_range)
+    formats = {n.name: n.format for n in nodes if n.kind == INPUT and n.format is not BINARY64}
+    cols, bounds = sample(ranges, names, cfg.samples, seed, cfg.default_range, formats)  # type: ignore[arg-type]
     n = len(next(iter(cols.values()))) if cols else 1
     declared = any(r.source != "default" for r in ranges.values())
 
@@ -220,7 +229,7 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
              ranges: dict[str, InputRange], cols: dict[str, np.ndarray], bounds: dict[str, tuple[float, float]],
              n: int, declared: bool,
              rounding: list[int], deadline: Deadline | None, keep_points: bool) -> Analysis:
-    fmt = site.float_format
+    fmt = root.format  # the format the result computes in: digits are counted in it
     u, total = fmt.unit_roundoff, fmt.digits
     th = cfg.thresholds
     v64 = forward(nodes, cols, F64_BACKEND, n, deadline)
@@ -263,7 +272,7 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
         err = np.array([relative_error(float(a), b) for a, b in zip(r, fmp)], dtype=float)
     defined = np.array([not mpmath.isnan(v) for v in fmp], dtype=bool)
     nonzero = np.array([v != 0 for v in fmp], dtype=bool)
-    normal = defined & np.isfinite(ffl) & nonzero & (np.abs(ffl) >= fmt.smallest_normal)
+    normal = defined & np.isfinite(ffl) & nonzero & (np.abs(ffl) >= fmt.smallest_normal) & (np.abs(ffl) <= fmt.largest)
     meas = digits_of(err / u, total)
     if _settled(th.info, normal, meas, logk64[fin64], inner_bad[idx] | ~fin64[idx]):
         # The reference shows no reportable loss and binary64 κ is small: no finding is possible; the exact κ

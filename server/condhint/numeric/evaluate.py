@@ -9,6 +9,7 @@ import numpy as np
 
 from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, topological
 from condhint.numeric.backends import F64_BACKEND, MP_BACKEND
+from condhint.numeric.formats import BINARY64
 from condhint.numeric.operations import OPERATIONS
 
 Values = dict[int, Any]
@@ -42,6 +43,8 @@ def forward(nodes: list[Node], inputs: dict[str, np.ndarray], backend: Any, n: i
             k = node.kind
             if k == INPUT:
                 x = inputs[node.name]  # type: ignore[index]
+                if node.format is not BINARY64:
+                    x = node.format.round(x)  # an input held in a narrower format is a number of that format
                 vals[id(node)] = backend.asarray(x) if backend is MP_BACKEND else x
             elif k == CONST:
                 vals[id(node)] = backend.const(node.value, node.exact, n)
@@ -57,7 +60,12 @@ def forward(nodes: list[Node], inputs: dict[str, np.ndarray], backend: Any, n: i
             else:
                 fn = OPERATIONS[k]
                 args = [vals[id(x)] for x in node.args]
-                vals[id(node)] = (fn.f64 if backend is F64_BACKEND else fn.mp)(*args)
+                if backend is MP_BACKEND:
+                    vals[id(node)] = fn.mp(*args)
+                elif node.format is BINARY64:
+                    vals[id(node)] = fn.f64(*args)
+                else:  # numpy's own arithmetic in that format, kept as binary64 numbers (exactly)
+                    vals[id(node)] = np.asarray(fn.evaluate(node.format, *args), dtype=float)
     return vals
 
 

@@ -89,6 +89,7 @@ class Operation:
     spellings: Spellings = Spellings()
     generated: Mapping[str, str] = field(default_factory=dict)  # spelling in generated code per module
     keeps_integers: bool = False  # integer arguments give an integer result (exact: never reported)
+    written: bool = True  # False: the reader infers it (conversions), no call spells it
 
     @property
     def arity(self) -> int | None:
@@ -105,9 +106,7 @@ class Operation:
 
     def evaluate(self, fmt: Format, *args: Any) -> Array:
         """The operation applied to arrays of `fmt`'s dtype, rounded to `fmt` as numpy does."""
-        if fmt.numpy_dtype is None:
-            raise NotImplementedError(f"{fmt.name} has no numpy dtype (needs {fmt.external_dtype})")
-        dtype = np.dtype(fmt.numpy_dtype)
+        dtype = fmt.dtype
         out = self.ufunc(*(np.asarray(a, dtype=dtype) for a in args))
         return np.asarray(out).astype(dtype, copy=False)
 

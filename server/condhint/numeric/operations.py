@@ -201,6 +201,10 @@ def _record_list() -> list[Operation]:
                   keeps_integers=True,
                   sympy=_sympy("Max"), spellings=Spellings(numpy=("maximum", "fmax"), builtins=("max",)),
                   generated={"numpy": "maximum", "builtins": "max"}),
+        # A conversion to the node's own format (`np.float32(x)`, `x.astype(np.float16)`, a Python float meeting
+        # a binary32 array): the reader writes it, rounding when the format is narrower than the operand's.
+        Operation("cast", "the conversion", UNARY, _np(np.asarray), lambda a: a, lambda B, a, o: (1.0,), CORRECT,
+                  sympy=lambda sp: lambda a: a, written=False),
     ]
 
 

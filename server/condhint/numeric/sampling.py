@@ -3,8 +3,11 @@ from __future__ import annotations
 
 import math
 
+from typing import Mapping
+
 import numpy as np
 
+from condhint.numeric.formats import Format
 from condhint.site import InputRange, Interval
 
 
@@ -30,6 +33,13 @@ def resolve(interval: Interval, default: tuple[float, float]) -> tuple[float, fl
     if lo > hi:
         lo, hi = hi, lo
     return lo, hi
+
+
+def _within(default: tuple[float, float], fmt: Format | None) -> tuple[float, float]:
+    if fmt is None:
+        return default
+    lo, hi = max(default[0], fmt.smallest_normal), min(default[1], fmt.largest)
+    return (lo, hi) if lo < hi else default
 
 
 def _one_sided(lo: float, hi: float, n: int) -> np.ndarray:
@@ -60,10 +70,12 @@ def points(lo: float, hi: float, n: int) -> np.ndarray:
 
 
 def sample(ranges: dict[str, InputRange], names: list[str], n: int, seed: int,
-           default: tuple[float, float]) -> tuple[dict[str, np.ndarray], dict[str, tuple[float, float]]]:
-    """Latin-hypercube style samples (each input's points shuffled independently), plus the corners."""
+           default: tuple[float, float], formats: Mapping[str, Format] | None = None
+           ) -> tuple[dict[str, np.ndarray], dict[str, tuple[float, float]]]:
+    """Latin-hypercube style samples (each input's points shuffled independently), plus the corners. An input
+    held in a narrower format (`formats`) takes the default magnitudes only within that format's normal range."""
     rng = np.random.default_rng(seed)
-    bounds = {name: resolve(ranges[name].interval, default) for name in names}
+    bounds = {name: resolve(ranges[name].interval, _within(default, (formats or {}).get(name))) for name in names}
     cols: dict[str, np.ndarray] = {}
     corners = 2 ** len(names) if len(names) <= 4 else 0
     for name in names:

@@ -87,7 +87,7 @@ def _properties(f: Finding, cell: int | None) -> dict[str, Any]:
         "worstAt": dict(f.worst_at), "scope": f.scope, "expression": f.expression,
         "inputs": {k: {"low": v.low, "high": v.high, "source": v.source, "uncertainty": v.uncertainty}
                    for k, v in f.inputs.items()},
-        "resultUncertainty": f.result_uncertainty,
+        "resultUncertainty": f.result_uncertainty, "format": f.format,
     }
     for key in ("digitsLost", "predictedDigitsLost", "measuredDigitsLost"):
         if props[key] is not None:

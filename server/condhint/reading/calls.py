@@ -6,6 +6,8 @@ from typing import TYPE_CHECKING
 
 from condhint.expr import CONST, SELECT, Node
 from condhint.numeric.operations import OPERATIONS
+from condhint.numeric.formats import BINARY64, Format
+from condhint.reading.dtypes import cast_target, dtype_keyword
 from condhint.reading.names import INT_BUILTINS, literal_number
 
 if TYPE_CHECKING:
@@ -22,6 +24,9 @@ def convert_call(conv: "Converter", e: ast.Call) -> Node | None:
         exact = literal_number(e.args[0]) or ""
         span = source.span(e)
         return Node(CONST, value=float(exact), exact=exact, span=span, text=source.segment(span))
+    cast = cast_target(e, names)
+    if cast is not None and cast[0] is not BINARY64:
+        return _converted(conv, e, *cast)
     fid = names.function(e.func)
     if isinstance(e.func, ast.Name) and e.func.id in INT_BUILTINS and e.func.id not in conv.env:
         return conv.opaque(e, True)
@@ -34,8 +39,10 @@ def convert_call(conv: "Converter", e: ast.Call) -> Node | None:
     if not nodes or any(a is None for a in nodes):
         return conv.opaque(e)
     args: list[Node] = nodes  # type: ignore[assignment]
-    if fid == "float":
-        return args[0] if len(args) == 1 else conv.opaque(e)
+    if fid == "float":  # np.float64(x), float(x): x itself, unless it is held in a narrower format
+        if len(args) != 1:
+            return conv.opaque(e)
+        return args[0] if args[0].format is BINARY64 else conv.node("cast", (args[0],), e, within=BINARY64)
     if fid == "log" and len(args) == 2:  # log(x, base) = log(x) / log(base)
         span = source.span(e)
         lx = Node("log", (args[0],), span=span, text=source.segment(span))
@@ -45,11 +52,24 @@ def convert_call(conv: "Converter", e: ast.Call) -> Node | None:
     if op.signature.folds and len(args) > 2:  # folded pairwise, left to right
         acc = args[0]
         for n in args[1:]:
-            acc = conv.node(fid, (acc, n), e)
+            acc = conv.node(fid, (acc, n), e, module=names.module_of_call(e.func))
         return acc
     if len(args) != op.arity:
         return conv.opaque(e)
-    return conv.node(fid, tuple(args), e, op.keeps_integers and all(n.is_int for n in args))
+    return conv.node(fid, tuple(args), e, op.keeps_integers and all(n.is_int for n in args),
+                     module=names.module_of_call(e.func), within=dtype_keyword(e, names))
+
+
+def _converted(conv: "Converter", e: ast.Call, fmt: Format, value: ast.expr) -> Node | None:
+    """A conversion to a narrower format: of a literal, the literal rounded; of a value, a conversion node."""
+    v = conv.convert(value)
+    if v is None:
+        return conv.opaque(e)
+    span = conv.w.source.span(e)
+    if v.kind == CONST and v.value is not None:
+        return Node(CONST, value=float(fmt.round([v.value])[0]), exact=v.exact, span=span, is_int=False,
+                    text=conv.w.source.segment(span), format=fmt, weak=False)
+    return conv.node("cast", (v,), e, within=fmt)
 
 
 def _where(conv: "Converter", e: ast.Call) -> Node | None:

@@ -10,7 +10,9 @@ import math
 from typing import TYPE_CHECKING
 
 from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, Span
+from condhint.numeric.formats import BINARY64, Format
 from condhint.reading.calls import convert_call
+from condhint.reading.dtypes import in_format, result_format
 from condhint.reading.loops import comprehension_scope
 from condhint.reading.ranges import CMPOPS, Context
 
@@ -51,7 +53,7 @@ class Converter:
         text = self.w.source.segment(self.w.source.span(expr))
         node = self._inputs.get(text)
         if node is None:
-            node = Node(INPUT, name=text, text=text, is_int=is_int)
+            node = self.w.input(text, is_int)
             self._inputs[text] = node
         return node
 
@@ -65,9 +67,16 @@ class Converter:
             self.scanned.add(id(child))
         return self.leaf(expr, is_int)
 
-    def node(self, kind: str, args: tuple[Node, ...], expr: ast.expr, is_int: bool = False) -> Node:
+    def node(self, kind: str, args: tuple[Node, ...], expr: ast.expr, is_int: bool = False, *,
+             module: str | None = None, within: Format | None = None) -> Node:
+        """An operation on `args` written by `expr`, in the format it computes in: `within` (a `dtype=`
+        argument or a conversion), else as `module`'s function or Python's operator promotes its operands."""
         span = self.w.source.span(expr)
-        return Node(kind, args, span=span, is_int=is_int, text=self.w.source.segment(span))
+        operands = [a for a in args if a.kind != COMPARE]
+        fmt, weak = (within, False) if within is not None else result_format(tuple(operands), module)
+        if fmt is not BINARY64 or any(a.format is not BINARY64 for a in operands):
+            args = tuple(a if a.kind == COMPARE else in_format(a, fmt, within is not None) for a in args)
+        return Node(kind, args, span=span, is_int=is_int, text=self.w.source.segment(span), format=fmt, weak=weak)
 
     def compare(self, test: ast.expr) -> Node | None:
         """A single comparison as a COMPARE node, or None."""

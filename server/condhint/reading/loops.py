@@ -36,7 +36,7 @@ def walk_loop(w: "Walker", scope: str, stmt: ast.For | ast.AsyncFor | ast.While,
     counters = {name for name in carried if (env.get(name) is not None and env[name].is_int  # type: ignore[union-attr]
                                              and int_valued_in(stmt.body, name, ctx.int_names))}
     for name in carried:
-        env[name] = Node(INPUT, name=name, text=name, is_int=name in counters)
+        env[name] = w.input(name, name in counters, like=env.get(name))
     body_ctx = ctx.copy()
     body_ctx.int_names.update(counters)
     if not isinstance(stmt, ast.While) and is_range:
@@ -44,15 +44,15 @@ def walk_loop(w: "Walker", scope: str, stmt: ast.For | ast.AsyncFor | ast.While,
         if call is not None:
             body_ctx.int_names.update(names)
             for n in names:
-                env[n] = Node(INPUT, name=n, text=n, is_int=True)
+                env[n] = w.input(n, True)
             body_ctx.constraints.extend(range_constraint(stmt.target, call))
         elif names:  # enumerate: the first target is the index
             body_ctx.int_names.add(names[0])
-            env[names[0]] = Node(INPUT, name=names[0], text=names[0], is_int=True)
+            env[names[0]] = w.input(names[0], True)
     w.block(scope, stmt.body, env, body_ctx)
     w.block(scope, stmt.orelse, env, ctx.copy())
     for name in carried:
-        env[name] = Node(INPUT, name=name, text=name, is_int=name in counters)
+        env[name] = w.input(name, name in counters, like=env.get(name))
     ctx.int_names.update(counters)
 
 
@@ -104,7 +104,7 @@ def comprehension_scope(conv: "Converter", e: ast.ListComp | ast.SetComp | ast.G
         conv.w.scan(conv, gen.iter)
         call = range_call(gen.iter, conv.env) if isinstance(gen.target, ast.Name) else None
         for t in target_names(gen.target):
-            inner[t] = Node(INPUT, name=t, text=t, is_int=call is not None)
+            inner[t] = conv.w.input(t, call is not None)
         if call is not None:
             ctx.int_names.update(target_names(gen.target))
             ctx.constraints.extend(range_constraint(gen.target, call))

@@ -48,6 +48,8 @@ SYMBOL_CONSTRUCTORS = {"symbols", "Symbol", "Dummy", "Wild", "var", "Function", 
                        "PolyRing", "FracField", "QQ", "ZZ"}
 # mpmath numbers carry their own precision and an unbounded exponent: not binary64 either.
 MPMATH_CONSTRUCTORS = {"mpf", "mpc", "mpi", "mpmathify", "convert", "matrix"}
+# dtype names a from-import can bring in (`from numpy import float32`); `reading.dtypes` reads what they mean.
+_DTYPES = {"float64", "double", "float32", "single", "float16", "half", "bfloat16", "float_"}
 # Calls that make a binary64 number from a literal: `np.float64(2)`, `np.double("0.25")`.
 NUMBER_CONSTRUCTORS = {"float64", "double"}
 
@@ -58,6 +60,8 @@ class Names:
 
     modules: dict[str, str] = field(default_factory=dict)  # local name -> module ("np" -> "numpy")
     functions: dict[str, str] = field(default_factory=dict)  # local name -> function id
+    dtype_names: dict[str, str] = field(default_factory=dict)  # local name -> dtype (`from numpy import float32`)
+    function_modules: dict[str, str] = field(default_factory=dict)  # from-imported function -> its module
     constants: dict[str, str] = field(default_factory=dict)  # local name -> exact value text
     # How the file spells each function, for code generation: function id -> (module, local alias or None)
     shadowed: set[str] = field(default_factory=set)
@@ -76,6 +80,8 @@ class Names:
         names.functions.update(FUNCTION_SPELLINGS["builtins"])
         for part in parts:
             names.modules.update(part.modules)
+            names.dtype_names.update(part.dtype_names)
+            names.function_modules.update(part.function_modules)
             names.functions.update(part.functions)
             names.constants.update(part.constants)
             names.shadowed |= part.shadowed
@@ -110,7 +116,7 @@ class Names:
         if isinstance(node, ast.Import):
             for alias in node.names:
                 mod = alias.name
-                if mod in ("math", "numpy", "scipy.special", "cmath"):
+                if mod in ("math", "numpy", "scipy.special", "cmath", "ml_dtypes"):
                     local = alias.asname or mod.split(".")[0]
                     self.modules[local] = "numpy" if mod == "numpy" else mod
                 elif mod == "scipy" and alias.asname is None:
@@ -124,17 +130,21 @@ class Names:
                 if alias.name == "special":
                     self.modules[alias.asname or "special"] = "scipy.special"
             return
+        if mod in ("numpy", "ml_dtypes"):
+            self.dtype_names.update({a.asname or a.name: a.name for a in node.names if a.name in _DTYPES})
         if mod not in FUNCTION_SPELLINGS:
             return
         spell, consts = FUNCTION_SPELLINGS[mod], CONSTANTS.get(mod, {})
         for alias in node.names:
             if alias.name == "*":
                 self.functions.update({k: v for k, v in spell.items() if v})
+                self.function_modules.update({k: mod for k, v in spell.items() if v})
                 self.constants.update(consts)
                 continue
             local = alias.asname or alias.name
             if spell.get(alias.name):
                 self.functions[local] = spell[alias.name]
+                self.function_modules[local] = mod
             elif alias.name in consts:
                 self.constants[local] = consts[alias.name]
 
@@ -168,6 +178,14 @@ class Names:
             mod = self._module_of(func.value)
             if mod is not None:
                 return FUNCTION_SPELLINGS.get(mod, {}).get(func.attr) or None
+        return None
+
+    def module_of_call(self, func: ast.expr) -> str | None:
+        """The module a known function's call goes to (`math`, `numpy`, `scipy.special`, `builtins`)."""
+        if isinstance(func, ast.Name):
+            return self.function_modules.get(func.id, "builtins" if func.id in self.functions else None)
+        if isinstance(func, ast.Attribute):
+            return self._module_of(func.value)
         return None
 
     def constant(self, expr: ast.expr) -> str | None:

@@ -12,7 +12,9 @@ from typing import TYPE_CHECKING, Iterable
 
 from condhint.expr import CONST, INPUT, Node, Span, topological
 from condhint.numeric.operations import OPERATIONS
+from condhint.numeric.formats import BINARY64, Format, promote
 from condhint.reading.comments import Clauses
+from condhint.reading.dtypes import format_of_annotation
 from condhint.reading.expressions import BINOPS, Converter
 from condhint.reading.loops import walk_loop
 from condhint.reading.ranges import Context, assume, declared_ranges, site_ranges
@@ -28,13 +30,14 @@ MODULE = "<module>"
 class Walker:
     """Reads one unit of a module into sites; `problems` lists the parts it could not read."""
 
-    def __init__(self, index: "ModuleIndex", max_nodes: int = 400) -> None:
+    def __init__(self, index: "ModuleIndex", max_nodes: int = 400, default_format: Format = BINARY64) -> None:
         self.index = index
         self.source = index.source
         self.names = index.names
         self.module_constants = index.constants
         self.walrus = index.walrus
         self.max_nodes = max_nodes
+        self.default_format = default_format  # of values whose type the code does not show
         self.sites: list[Site] = []
         self.problems: list[tuple[Span, str]] = []  # parts that could not be read (too deep, …)
         self._comment_lines = index.comment_at
@@ -59,6 +62,14 @@ class Walker:
             inner.update(id(n) for n in topological(site.root)[:-1])
         self.sites = [s for s in self.sites if id(s.root) not in inner]
         return self.sites
+
+    def input(self, name: str, is_int: bool = False, like: Node | None = None, fmt: Format | None = None) -> Node:
+        """An input: in the format of the value it stands for (`like`), a stated one (`fmt`), or the default
+        (binary64 Python floats unless configured otherwise)."""
+        if like is not None and fmt is None:
+            return Node(INPUT, name=name, text=name, is_int=is_int, format=like.format, weak=like.weak)
+        weak = fmt is None and self.default_format is BINARY64  # a Python float
+        return Node(INPUT, name=name, text=name, is_int=is_int, format=fmt or self.default_format, weak=weak)
 
     def scope_inputs(self, scope: str) -> dict[str, Node]:
         """The inputs of a scope by source text, shared by all its expressions."""
@@ -102,10 +113,10 @@ class Walker:
         args = fn.args
         for a in [*args.posonlyargs, *args.args, *args.kwonlyargs]:
             is_int = isinstance(a.annotation, ast.Name) and a.annotation.id == "int"
-            params[a.arg] = Node(INPUT, name=a.arg, is_int=is_int, text=a.arg)
+            params[a.arg] = self.input(a.arg, is_int, fmt=format_of_annotation(a.annotation, self.names))
         for a in (args.vararg, args.kwarg):
             if a is not None:
-                params[a.arg] = Node(INPUT, name=a.arg, text=a.arg)
+                params[a.arg] = self.input(a.arg)
         if isinstance(fn, ast.Lambda):
             body: list[ast.stmt] = [ast.Return(fn.body, lineno=fn.body.lineno, col_offset=fn.body.col_offset,
                                                end_lineno=fn.body.end_lineno, end_col_offset=fn.body.end_col_offset)]
@@ -132,7 +143,7 @@ class Walker:
             except RecursionError:
                 self.problems.append((self.source.span(stmt), "the statement is nested too deeply to analyse"))
                 for target in bound_names([stmt], self.walrus):
-                    env[target] = Node(INPUT, name=target, text=target)
+                    env[target] = self.input(target)
 
     def _statement(self, scope: str, stmt: ast.stmt, env: dict[str, Node | None], ctx: Context) -> None:
         conv = Converter(self, env, ctx, scope, stmt)
@@ -164,7 +175,7 @@ class Walker:
             for item in stmt.items:
                 self.scan(conv, item.context_expr)
                 for t in target_names(item.optional_vars):
-                    env[t] = Node(INPUT, name=t, text=t)
+                    env[t] = self.input(t)
             self.block(scope, stmt.body, env, ctx)
             return
         if isinstance(stmt, ast.Try) or type(stmt).__name__ == "TryStar":
@@ -174,7 +185,7 @@ class Walker:
             return
         if isinstance(stmt, (ast.Global, ast.Nonlocal)):
             for n in stmt.names:
-                env[n] = Node(INPUT, name=n, text=n)
+                env[n] = self.input(n)
             return
         if isinstance(stmt, ast.Match):
             self.scan(conv, stmt.subject)
@@ -188,7 +199,7 @@ class Walker:
 
     def _opaque_bindings(self, stmt: ast.stmt, env: dict[str, Node | None]) -> None:
         for t in bound_names([stmt], self.walrus):
-            env[t] = Node(INPUT, name=t, text=t)
+            env[t] = self.input(t, like=env.get(t))
 
     def _assign(self, stmt: ast.Assign | ast.AnnAssign | ast.AugAssign, env: dict[str, Node | None],
                 ctx: Context, conv: Converter) -> None:
@@ -209,7 +220,7 @@ class Walker:
                     self._bind(t.id, n, stmt, env, ctx)
                 else:
                     for name in target_names(t):
-                        env[name] = Node(INPUT, name=name, text=name)
+                        env[name] = self.input(name)
             return
         if self.names.not_binary64(value):
             for target in targets:
@@ -223,12 +234,14 @@ class Walker:
             if isinstance(target, ast.Name):
                 if node is not None and node.kind == INPUT and not node.is_int and not isinstance(value, ast.Name):
                     # An opaque value (unknown call, subscript): name the input after the variable.
-                    node = Node(INPUT, name=target.id, text=target.id, is_int=node.is_int)
+                    stated = format_of_annotation(stmt.annotation, self.names) if isinstance(stmt, ast.AnnAssign) \
+                        else None
+                    node = self.input(target.id, node.is_int, like=node, fmt=stated)
                 self._bind(target.id, node, stmt, env, ctx)
             else:
                 shape = isinstance(value, ast.Attribute) and value.attr == "shape"  # `n, m = a.shape`
                 for t in target_names(target):
-                    env[t] = Node(INPUT, name=t, text=t, is_int=shape)
+                    env[t] = self.input(t, shape)
                     if shape:
                         ctx.int_names.add(t)
 
@@ -248,12 +261,12 @@ class Walker:
                 return
         self.scan(conv, stmt.value)
         for t in target_names(stmt.target):
-            env[t] = Node(INPUT, name=t, text=t)
+            env[t] = self.input(t, like=env.get(t))
 
     def _bind(self, name: str, node: Node | None, stmt: ast.stmt, env: dict[str, Node | None], ctx: Context) -> None:
         if node is not None and node.kind not in (INPUT, CONST):
             if len(topological(node)) > self.max_nodes:
-                node = Node(INPUT, name=name, text=name)  # keep sites bounded: a long chain is cut here
+                node = self.input(name, like=node)  # keep sites bounded: a long chain is cut here
             else:
                 self._bindings[id(node)] = Binding(name, stmt.lineno, self.source.span(stmt))
         env[name] = node
@@ -286,7 +299,7 @@ class Walker:
             return
         for name in bound_names(stmt.body, self.walrus) | bound_names(stmt.orelse, self.walrus):
             a, b = body_env.get(name), else_env.get(name)
-            env[name] = a if a is b else Node(INPUT, name=name, text=name)
+            env[name] = a if a is b else self.input(name, like=_wider(a, b))
 
     # ---- sites ------------------------------------------------------------------------------------------
     def scan(self, conv: Converter, expr: ast.expr) -> Node | None:
@@ -314,9 +327,16 @@ class Walker:
         ranges, filters = site_ranges(nodes, conv.ctx)
         bindings = {id(n): self._bindings[id(n)] for n in nodes if id(n) in self._bindings}
         self.sites.append(Site(root=root, scope=conv.scope, span=root.span, statement_line=conv.stmt.lineno,
-                               ranges=ranges, filters=filters,
+                               ranges=ranges, filters=filters, float_format=root.format,
                                bindings=tuple(sorted(set(bindings.values()), key=lambda b: b.line)),
                                bindings_by_node=bindings))
+
+
+def _wider(a: Node | None, b: Node | None) -> Node | None:
+    """Of two values a name may hold after a branch, the one whose format its input should take."""
+    if a is None or b is None:
+        return a or b
+    return a if promote(a.format, a.weak, b.format, b.weak)[0] is a.format else b
 
 
 def _union(intervals: list[tuple[int, int]]) -> list[tuple[int, int]]:

@@ -71,8 +71,7 @@ def profile(root: Node, cols: dict[str, np.ndarray], cfg: Config, seconds: float
     names = input_names(root)
     n = len(next(iter(cols.values()))) if cols else 1
     cols = {k: np.asarray(cols[k], dtype=float) for k in names}
-    u = cfg.unit_roundoff
-    total = -math.log10(u)
+    u, total = root.format.unit_roundoff, root.format.digits  # counted in the format the result computes in
     rounding = [i for i, node in enumerate(nodes) if rounds(node)]
     deadline = Deadline(seconds)
     with np.errstate(all="ignore"):

@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Callable
 
 from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, topological
+from condhint.numeric.formats import BINARY64
 from condhint.numeric.operations import OPERATIONS
 
 if TYPE_CHECKING:
@@ -145,15 +146,21 @@ class Style:
 class Spelling:
     """How one site spells functions; collects the import statements the spellings need."""
 
-    def __init__(self, style: Style, module: str, from_style: bool) -> None:
+    def __init__(self, style: Style, module: str, from_style: bool, narrow: bool = False) -> None:
         self.style = style
         self.module = module
         self.from_style = from_style
+        self.narrow = narrow  # only numpy's functions keep the site's format
         self.imports: list[str] = []
 
     @classmethod
     def for_site(cls, style: Style, nodes: list[Node]) -> "Spelling":
-        """The module and import style the site's own calls use (the file's imports when it calls none)."""
+        """The module and import style the site's own calls use (the file's imports when it calls none); numpy
+        where the site computes in a reduced format (`math` would compute in binary64 and return a Python float)."""
+        if any(n.format is not BINARY64 for n in nodes):
+            if "numpy" not in style.aliases and "numpy" not in style.from_imports:
+                raise Unspellable("a reduced-format fix needs numpy, which this file does not import")
+            return cls(style, "numpy", "numpy" in style.from_imports and "numpy" not in style.aliases, narrow=True)
         seen: Counter[tuple[str, bool]] = Counter()
         for node in nodes:
             if node.kind in OPERATIONS and node.kind not in _OPS and "(" in node.text and node.text.endswith(")"):
@@ -186,7 +193,7 @@ class Spelling:
         if builtin is not None and not (self.array_style and "numpy" in generated):
             return builtin
         other = "math" if self.module == "numpy" else "numpy"
-        for mod in (self.module, other):
+        for mod in (self.module,) if self.narrow else (self.module, other):
             attr = generated.get(mod)
             if attr is None:
                 continue
@@ -268,6 +275,10 @@ class Emitter:
         if node.kind == "reciprocal":
             ta, pa = self._emit(node.args[0])
             return f"1 / {_par(ta, pa <= MUL_P)}", MUL_P
+        if node.kind == "cast" and not node.format.narrower_than(node.args[0].format):
+            return self._emit(node.args[0])  # widening is exact: no conversion to write
+        if node.kind == "cast" and node.args[0].weak:
+            return self._emit(node.args[0])  # a Python number meeting a narrower format: converted implicitly
         if node.kind == COMPARE:
             (ta, pa), (tb, pb) = self._emit(node.args[0]), self._emit(node.args[1])
             return f"{_par(ta, pa <= COMPARE_P)} {node.name} {_par(tb, pb <= COMPARE_P)}", COMPARE_P

@@ -8,7 +8,9 @@ from __future__ import annotations
 import math
 from fractions import Fraction
 
-from condhint.expr import CONST, INPUT, SELECT, Node, Span, topological
+from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, Span, topological
+from condhint.numeric.formats import BINARY64
+from condhint.reading.dtypes import in_format, result_format
 
 
 # ---- construction ------------------------------------------------------------------------------------------
@@ -179,3 +181,28 @@ def size(node: Node) -> int:
 
 def finite(x: float) -> bool:
     return isinstance(x, float) and math.isfinite(x)
+
+
+_OPERATORS = ("add", "sub", "mul", "div", "pow", "neg")  # Python's operators; other operations are calls
+
+
+def typed(root: Node, kept: set[int]) -> Node:
+    """A candidate whose new nodes (ids not in `kept`) compute in the formats the code would: operands
+    promote as numpy promotes them, functions are numpy's (a fix in a reduced format is written with numpy),
+    Python numbers meeting a narrower format are converted. A binary64 candidate is returned as it is."""
+    nodes = topological(root)
+    if all(n.format is BINARY64 for n in nodes):
+        return root
+    out: dict[int, Node] = {}
+    for n in nodes:
+        if id(n) in kept or n.kind in (INPUT, CONST):
+            out[id(n)] = n
+            continue
+        args = tuple(out[id(a)] for a in n.args)
+        operands = tuple(a for a in args if a.kind != COMPARE)
+        fmt, weak = result_format(operands, None if n.kind in _OPERATORS else "numpy") if operands else (BINARY64, True)
+        if n.kind != COMPARE:
+            args = tuple(a if a.kind == COMPARE else in_format(a, fmt) for a in args)
+        out[id(n)] = Node(n.kind, args, name=n.name, value=n.value, exact=n.exact, span=n.span, is_int=n.is_int,
+                          text=n.text, format=fmt if n.kind != COMPARE else BINARY64, weak=weak)
+    return out[id(root)]

@@ -178,26 +178,28 @@ def fixes_for(subject: Subject, cfg: Config, seconds: float = SECONDS_PER_FINDIN
         return contexts[id(t)]
 
     seen: set[tuple[int, str]] = set()
+    kept = {id(n) for n in nodes}
     for stage in (lambda: _named(tgts, ctx_for), lambda: _searched(tgts, ctx_for, deadline)):
         verified: list[Verified] = []
         for p in stage():
             if deadline.at is not None and time.perf_counter() > deadline.at:
                 break
+            replacement = dag.typed(p.replacement, kept)  # in the format the code would compute it in
             try:
-                text, imports, span = writer(p.target).write(p.replacement)
+                text, imports, span = writer(p.target).write(replacement)
             except (codegen.Unspellable, SyntaxError, ValueError, RecursionError):
                 continue
             if (id(p.target), text) in seen or text == p.target.text:
                 continue
             seen.add((id(p.target), text))
-            cand_root = dag.substitute(site.root, p.target, p.replacement)
+            cand_root = dag.substitute(site.root, p.target, replacement)
             try:
-                ev = bench.judge(p.target, p.replacement, cand_root, p.approximate, deadline)
+                ev = bench.judge(p.target, replacement, cand_root, p.approximate, deadline)
             except SKIPPED:
                 continue
             if ev.ok:
                 title = p.title.replace("{text}", text if len(text) <= 50 else text[:47] + "…")
-                verified.append(Verified(p.rule, title, p.target, p.replacement, text, imports, span, ev,
+                verified.append(Verified(p.rule, title, p.target, replacement, text, imports, span, ev,
                                          p.cost, p.order))
         verified.sort(key=Verified.rank)
         fixes = rechecked([v.fix() for v in verified], finding, subject.index, subject.reanalyse)

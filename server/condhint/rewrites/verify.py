@@ -63,8 +63,9 @@ class Bench:
         root = site.root
         self.names = sorted({n.name for n in topological(root) if n.kind == INPUT})  # type: ignore[misc]
         ranges = site_ranges(site, self.names)
+        formats = {n.name: n.format for n in topological(root) if n.kind == INPUT}
         cols, self.bounds = sample(ranges, self.names, cfg.samples, zlib.crc32(root.key().encode()),
-                                   cfg.default_range)
+                                   cfg.default_range, formats)  # type: ignore[arg-type]
         cols = _with_edges(cols, self.bounds, worst_at or {})
         cols = keep_where_guards_hold(site, cols)
         self.cols, self.n = cols, len(next(iter(cols.values()))) if cols else 1
