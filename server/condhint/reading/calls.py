@@ -39,10 +39,14 @@ def convert_call(conv: "Converter", e: ast.Call) -> Node | None:
     if not nodes or any(a is None for a in nodes):
         return conv.opaque(e)
     args: list[Node] = nodes  # type: ignore[assignment]
-    if fid == "float":  # np.float64(x), float(x): x itself, unless it is held in a narrower format
+    if fid == "float":  # np.float64(x), float(x): x itself, in binary64
         if len(args) != 1:
             return conv.opaque(e)
-        return args[0] if args[0].format is BINARY64 else conv.node("cast", (args[0],), e, within=BINARY64)
+        x = args[0]
+        numpy_value = names.module_of_call(e.func) == "numpy" and x.weak and conv.w.mixed_formats
+        if x.format is BINARY64 and not numpy_value:
+            return x
+        return conv.node("cast", (x,), e, within=BINARY64)  # widened exactly, or a numpy float64 (not weak)
     if fid == "log" and len(args) == 2:  # log(x, base) = log(x) / log(base)
         span = source.span(e)
         lx = Node("log", (args[0],), span=span, text=source.segment(span))

@@ -23,6 +23,7 @@ from condhint.reading.source import Source
 from condhint.reading.targets import DEFS
 
 MODULE = "<module>"
+_REDUCED = re.compile(r"float32|float16|bfloat16|single|half|['\"]f[24]['\"]")
 _TOP_LEVEL_DEF = re.compile(r"^(?:@|def\s|async\s+def\s|class\s)")
 _NEWLINE = re.compile(r"\r\n|\r|\n")
 
@@ -109,6 +110,11 @@ class ModuleIndex:
             return [s for s in self.tree.body if not isinstance(s, DEFS)]
         stmt = self.statement(unit)
         return [stmt] if stmt is not None else []
+
+    @cached_property
+    def mentions_reduced_formats(self) -> bool:
+        """Whether the text spells a format narrower than binary64 (else every value is binary64)."""
+        return bool(_REDUCED.search(self.text))
 
     @cached_property
     def walrus(self) -> bool:

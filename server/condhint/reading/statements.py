@@ -38,6 +38,8 @@ class Walker:
         self.walrus = index.walrus
         self.max_nodes = max_nodes
         self.default_format = default_format  # of values whose type the code does not show
+        # Whether formats can mix here: else every value is binary64 and a Python float's weakness never matters.
+        self.mixed_formats = default_format is not BINARY64 or index.mentions_reduced_formats
         self.sites: list[Site] = []
         self.problems: list[tuple[Span, str]] = []  # parts that could not be read (too deep, …)
         self._comment_lines = index.comment_at

@@ -225,6 +225,13 @@ class Spelling:
             return local
         raise Unspellable("np.where without numpy")
 
+    def constructor(self, dtype: str) -> str:
+        """numpy's scalar type of a format (`np.float32`), as this file spells it."""
+        alias = self.style.aliases.get("numpy")
+        if alias is not None and dtype in ("float64", "float32", "float16"):
+            return f"{alias}.{dtype}"
+        raise Unspellable(f"no spelling of {dtype} in this file")
+
     def constant(self, name: str) -> str:
         mod = self.module
         local = self.style.from_imports.get(mod, {}).get(name)
@@ -275,10 +282,8 @@ class Emitter:
         if node.kind == "reciprocal":
             ta, pa = self._emit(node.args[0])
             return f"1 / {_par(ta, pa <= MUL_P)}", MUL_P
-        if node.kind == "cast" and not node.format.narrower_than(node.args[0].format):
-            return self._emit(node.args[0])  # widening is exact: no conversion to write
-        if node.kind == "cast" and node.args[0].weak:
-            return self._emit(node.args[0])  # a Python number meeting a narrower format: converted implicitly
+        if node.kind == "cast":
+            return self._cast(node)
         if node.kind == COMPARE:
             (ta, pa), (tb, pb) = self._emit(node.args[0]), self._emit(node.args[1])
             return f"{_par(ta, pa <= COMPARE_P)} {node.name} {_par(tb, pb <= COMPARE_P)}", COMPARE_P
@@ -292,6 +297,14 @@ class Emitter:
             args = ", ".join(_par(t, p < SELECT_P) for t, p in (self._emit(a) for a in node.args))
             return f"{name}({args})", ATOM_P
         raise Unspellable(f"cannot write {node.kind}")
+
+    def _cast(self, node: Node) -> tuple[str, int]:
+        """A conversion: implicit for a Python number (numpy converts it where it meets the other operand),
+        else written as numpy's constructor of the format (`np.float32(…)`)."""
+        inner, p = self._emit(node.args[0])
+        if node.args[0].weak or node.args[0].is_int:
+            return inner, p
+        return f"{self.spelling.constructor(node.format.short)}({inner})", ATOM_P
 
     def _const(self, node: Node) -> tuple[str, int]:
         if node.text and is_expression(node.text):

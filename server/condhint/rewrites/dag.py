@@ -199,6 +199,9 @@ def typed(root: Node, kept: set[int]) -> Node:
             out[id(n)] = n
             continue
         args = tuple(out[id(a)] for a in n.args)
+        if n.kind == "cast":  # a conversion states its own format
+            out[id(n)] = Node("cast", args, span=n.span, text=n.text, format=n.format, weak=False)
+            continue
         operands = tuple(a for a in args if a.kind != COMPARE)
         fmt, weak = result_format(operands, None if n.kind in _OPERATORS else "numpy") if operands else (BINARY64, True)
         if n.kind != COMPARE:

@@ -22,6 +22,7 @@ from condhint.rewrites import codegen, dag, search, sym
 from condhint.rewrites.context import Context
 from condhint.rewrites.recheck import FIXABLE, rechecked
 from condhint.rewrites.rules import RULES
+from condhint.rewrites.wider import WIDER
 from condhint.rewrites.verify import NOISE, Bench, Evidence
 from condhint.rewrites.writer import Writer
 from condhint.site import Site
@@ -100,7 +101,7 @@ SKIPPED = (ArithmeticError, ValueError, TypeError, RecursionError, sym.Untransla
 def _named(tgts: list[Node], ctx_for) -> Iterator[Proposal]:  # type: ignore[no-untyped-def]
     for t in tgts:
         ctx = ctx_for(t)
-        for order, rule in enumerate(RULES):
+        for order, rule in enumerate((*RULES, WIDER)):
             try:
                 cands = rule.candidates(t, ctx)
             except SKIPPED:
