@@ -7,6 +7,7 @@ from typing import Any
 
 from condhint.expr import Span
 from condhint.kinds import BY_CODE
+from condhint.site import source_label
 
 SEVERITY_RANK = {"info": 1, "warning": 2, "error": 3}
 
@@ -96,7 +97,7 @@ class Finding:
             "measured_digits_lost": r(self.measured_digits_lost),
             "kappa": None if self.kappa is None else float(f"{self.kappa:.3g}"),
             "kappa_formula": self.kappa_formula, "format": self.format,
-            "inputs": {k: {"low": v.low, "high": v.high, "uncertainty": v.uncertainty, "source": v.source}
+            "inputs": {k: {"low": v.low, "high": v.high, "uncertainty": v.uncertainty, "source": source_label(v.source)}
                        for k, v in self.inputs.items()},
             "worst_at": {k: float(f"{v:.6g}") for k, v in self.worst_at.items()},
             "fraction_affected": r(self.fraction_affected, 3),

@@ -25,7 +25,9 @@ _SOURCES = {
     "guard": "a guard (`if …: raise/return`)",
     "branch": "the enclosing branch",
     "range": "the enclosing `for … in range(…)`",
-    "default": "the default range",
+    "parameter default": "the scale of the parameter's default value (two decades either side)",
+    "docstring": "the function's docstring",
+    "default": "an assumed range (the default: declare the real one with a `# condhint:` comment)",
 }
 
 

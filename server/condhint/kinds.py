@@ -23,7 +23,17 @@ class Kind:
 
 
 def _by_digits(a: Analysis, cfg: Config) -> str | None:
-    return cfg.thresholds.severity(a.digits) if a.digits is not None else None
+    severity = cfg.thresholds.severity(a.digits) if a.digits is not None else None
+    if severity in ("warning", "error") and only_at_assumed_extremes(a, cfg):
+        return "info"  # quiet when unsure: the message says what to declare
+    return severity
+
+
+def only_at_assumed_extremes(a: Analysis, cfg: Config) -> bool:
+    """A loss that shows only toward the ends of assumed (guessed) ranges and on under half of them: the code
+    may never see those magnitudes."""
+    return bool(a.assumed) and a.ordinary_digits is not None and a.ordinary_digits < cfg.thresholds.warning \
+        and (a.fraction or 0.0) < 0.5
 
 
 def _on_enough_of_the_range(a: Analysis, cfg: Config) -> str | None:

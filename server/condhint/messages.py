@@ -88,8 +88,8 @@ def formula_message(m: Facts) -> str:
             f"(predicted {digits(a.worst_predicted)}): {what}. "
             + (f"The result itself needs only κ ≈ {num(a.worst_kappa)}, so this loss is avoidable by rewriting "
                "the formula" if (a.worst_kappa or 0) < 10 ** ((a.digits or 0) - 1) else
-               f"The inputs are exact here and the problem has κ ≈ {num(a.worst_kappa)}, yet the digits are lost "
-               "to rounding inside the formula, so a different formula can avoid the loss")
+               f"The problem itself has κ ≈ {num(a.worst_kappa)}: a different formula avoids this loss only for "
+               "exact inputs (as declared); any error already in the inputs is magnified as much")
             + f"; ≥ {num(m.cfg.thresholds.info, 2)} digits are lost on {m.share}.")
 
 
@@ -123,3 +123,10 @@ def domain_message(m: Facts) -> str:
                 f"range (e.g. at {where(a.worst_at)}): the declared range leaves the function's domain.")
     return (f"rounding pushes the argument of {code(flagged.text)} outside its domain{dom} at "
             f"{where(a.worst_at)}, so the code returns nan where the exact formula is defined.")
+
+
+def declare_note(a: Analysis) -> str:
+    """What to declare when a loss shows only at magnitudes the assumed range guessed."""
+    names = ", ".join(f"`{k}`" for k in a.assumed)
+    return (f" This shows only toward the ends of the range assumed for {names} (no range is declared): "
+            "declare the real range in a `# condhint:` comment to check it.")

@@ -32,6 +32,15 @@ class Interval:
         return f"{'(' if self.low_open else '['}{self.low:g}, {self.high:g}{')' if self.high_open else ']'}"
 
 
+def source_label(source: str) -> str:
+    """How outputs name where a range came from (design §2): "declared", "assumed", or "inferred (…)"."""
+    parts = list(dict.fromkeys(source.split("+")))
+    if parts[0] == "comment":
+        return "declared" + (f", narrowed by {', '.join(parts[1:])}" if parts[1:] else "")
+    inferred = [p for p in parts if p != "default"]
+    return f"inferred ({', '.join(inferred)})" if inferred else "assumed"
+
+
 @dataclass(frozen=True)
 class InputRange:
     """The range an input is sampled on and where that range came from."""

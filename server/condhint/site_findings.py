@@ -4,8 +4,8 @@ from __future__ import annotations
 from condhint.config import Config
 from condhint.expr import Span, topological
 from condhint.findings import Finding, InputInfo
-from condhint.kinds import BY_CATEGORY, NOT_ANALYSED
-from condhint.messages import Facts
+from condhint.kinds import BY_CATEGORY, NOT_ANALYSED, only_at_assumed_extremes
+from condhint.messages import Facts, declare_note
 from condhint.numeric.analysis import Analysis
 from condhint.site import Site
 
@@ -23,6 +23,8 @@ def finding_for(site: Site, a: Analysis, cfg: Config, path: str, origin: str = "
     culprit = nodes[a.culprit] if a.culprit is not None else site.root
     flagged = culprit if culprit.span is not None else site.root
     msg = kind.message(Facts(site, a, flagged, [nodes[i] for i in a.sources_of_error], cfg))
+    if severity == "info" and only_at_assumed_extremes(a, cfg):
+        msg += declare_note(a)
     related = [(b.line, f"`{b.name}` is computed here") for b in site.bindings if b.line != flagged.span.line]
     inputs = {k: InputInfo(a.bounds[k][0], a.bounds[k][1], a.sources[k],
                            site.ranges[k].uncertainty if k in site.ranges else None, a.kappa_i.get(k))

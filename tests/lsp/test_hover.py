@@ -124,4 +124,4 @@ async def test_hover_names_where_each_range_came_from(lsp, tmp_path):
     undeclared = "import math\n\n\ndef step(n):\n    return math.sqrt(n + 1) - math.sqrt(n)\n"
     uri = await opened(client, tmp_path, undeclared, "step.py")
     md = (await hover_at(client, uri, undeclared, " - math", offset=1)).contents.value
-    assert "`n ∈ [1e-06, 1e+06]` from the default range" in md
+    assert "`n ∈ [1e-06, 1e+06]` from an assumed range (the default" in md  # marked as a guess (issue: trust)

@@ -8,11 +8,8 @@ Each kind has one thread; a request from a hover or a code action goes before qu
 from __future__ import annotations
 
 import asyncio
-import importlib
 import logging
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import replace
-from types import ModuleType
 from typing import Any, Callable
 
 from condhint.config import Config

@@ -18,11 +18,12 @@ from condhint.config import Config
 from condhint.expr import CONST, INPUT, Node, const_rounds, topological
 from condhint.numeric.backends import F64_BACKEND, MP_BACKEND
 from condhint.numeric.formats import BINARY64
+from condhint.numeric.inputs import ORDINARY, defined_ranges, keep_where_guards_hold
 from condhint.numeric.evaluate import Deadline, differentiable, forward, reverse
 from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.reference import reference_values, relative_error
 from condhint.numeric.sampling import sample
-from condhint.site import InputRange, Interval, Site
+from condhint.site import InputRange, Site
 
 
 @dataclass
@@ -64,6 +65,8 @@ class Analysis:
     undefined_fraction: float = 0.0
     underflow: bool = False
     declared: bool = False
+    assumed: list[str] = field(default_factory=list)  # inputs on the assumed (default) range
+    ordinary_digits: float | None = None  # the finding's figure where assumed inputs have ordinary magnitudes
     points: list[Point] = field(default_factory=list)
     note: str = ""
 
@@ -180,34 +183,14 @@ def _subset(scores: list[np.ndarray], n: int, k: int) -> np.ndarray:
     return np.array(sorted(set(int(p) for p in picks)))[: max(k, 2)]
 
 
-def keep_where_guards_hold(site: Site, cols: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
-    """Drop the samples where a guard or branch on a computed value says the code does not run."""
-    n = len(next(iter(cols.values()))) if cols else 0
-    for flt in site.filters:
-        cnodes = topological(flt.condition)
-        if not {x.name for x in cnodes if x.kind == INPUT} <= set(cols):
-            continue
-        with np.errstate(all="ignore"):
-            cv = forward(cnodes, cols, F64_BACKEND, n)[id(flt.condition)]
-        keep = np.asarray(cv, dtype=bool) == flt.holds
-        if keep.any():
-            cols = {k: v[keep] for k, v in cols.items()}
-            n = int(keep.sum())
-    return cols
-
-
-def site_ranges(site: Site, names: list[str]) -> dict[str, InputRange]:
-    return {n: site.ranges.get(n) or InputRange(Interval(), "default") for n in names}
-
-
 def analyse(site: Site, cfg: Config, root: Node | None = None, deadline: Deadline | None = None,
             keep_points: bool = False) -> Analysis:
     """Analyse the site's expression (or one of its subexpressions, `root`) over its input ranges."""
     root = root or site.root
     nodes = topological(root)
     names = sorted({n.name for n in nodes if n.kind == INPUT})  # type: ignore[misc]
-    ranges = site_ranges(site, names)
     seed = zlib.crc32(root.key().encode())
+    ranges = defined_ranges(site, nodes, names, cfg, seed)
     formats = {n.name: n.format for n in nodes if n.kind == INPUT and n.format is not BINARY64}
     cols, bounds = sample(ranges, names, cfg.samples, seed, cfg.default_range, formats)  # type: ignore[arg-type]
     n = len(next(iter(cols.values()))) if cols else 1
@@ -265,6 +248,11 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
     shallow = bool(np.all(np.isfinite(r_sub)) and np.all(r_sub != 0) and np.max(pred64[idx]) < 12
                    and not inner_bad[idx].any())
     vmp, dps = reference_values(nodes, sub, m, deadline, shallow)
+    assumed = [k for k in names if ranges[k].source == "default" and not ranges[k].is_int]
+    ordinary = np.ones(m, dtype=bool)
+    for k in assumed:
+        mag = np.abs(sub[k])
+        ordinary &= (mag >= ORDINARY[0]) & (mag <= ORDINARY[1])
     r = r64[idx]
     with mpmath.workdps(dps):
         fmp = vmp[id(root)]
@@ -288,6 +276,7 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
     res = _summary(base, sub, normal & np.isfinite(r), kmp, kimp, predmp, meas, r, keep_points, refined=True,
                    ranges=ranges)
     res.undefined_fraction = float(np.mean(~defined)) if m else 0.0
+    res.assumed = assumed
 
     sub64 = {id(node): np.asarray(v64[id(node)], dtype=float)[idx] for node in nodes if differentiable(node)}
     # 1. Overflow / underflow: the true result is ordinary but an intermediate is not.
@@ -299,6 +288,7 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
             culprit = _first_nonfinite(nodes, sub64, w)
             if culprit is not None:
                 res.category, res.digits = kind, total
+                res.ordinary_digits = total if (mask & ordinary).any() else 0.0
                 res.culprit = culprit
                 res.underflow = bool(sub64[id(nodes[culprit])][w] == 0)
                 _worst(res, sub, w, predmp, meas, kmp)
@@ -309,7 +299,17 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
     if nan64.any():
         w = int(np.flatnonzero(nan64)[0])
         culprit = _first_nan(nodes, sub64, w)
+        over = _first_nonfinite(nodes, sub64, w)
+        if culprit is not None and over is not None and any(
+                np.isinf(sub64[id(a)][w]) for a in nodes[culprit].args if id(a) in sub64):
+            # inf * 0, inf - inf: the nan comes from an overflow earlier, not from leaving a domain
+            res.category, res.digits, res.culprit, res.underflow = "overflow", total, over, False
+            res.ordinary_digits = total if (nan64 & ordinary).any() else 0.0
+            _worst(res, sub, w, predmp, meas, kmp)
+            res.fraction = float(np.mean(np.isnan(r64)))
+            return res
         res.category, res.digits, res.culprit = "domain", total, culprit
+        res.ordinary_digits = total if (nan64 & ordinary).any() else 0.0
         _worst(res, sub, w, predmp, meas, kmp)
         res.fraction = float(np.mean(np.isnan(r64)))
         return res
@@ -335,12 +335,14 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
     if cand.any():
         w = int(np.argmax(np.where(cand, meas, -np.inf)))
         res.category, res.digits = "formula", float(meas[w])
+        res.ordinary_digits = float(np.max(meas[cand & ordinary], initial=0.0))
         res.fraction = max(frac_formula, 1.0 / n)
         _worst(res, sub, w, predmp, meas, kmp)
         _attribute(res, nodes, steps, terms, rounding, u, w)
     elif np.any(valid & (logk >= th.info)):
         w = int(np.argmax(np.where(valid, logk, -np.inf)))
         res.category, res.digits = "inherent", float(min(logk[w], total))
+        res.ordinary_digits = float(np.max(np.minimum(logk, total)[valid & ordinary], initial=0.0))
         res.fraction = max(frac_kappa, 1.0 / n)
         _worst(res, sub, w, predmp, meas, kmp)
         _attribute(res, nodes, steps, terms, rounding, u, w)

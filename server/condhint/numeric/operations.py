@@ -14,7 +14,7 @@ import mpmath
 import numpy as np
 
 from condhint.numeric.backends import _vec as v
-from condhint.numeric.operation import (BINARY, CORRECT, EXACT, FOLDED, UNARY, Array, Operation, Spellings,
+from condhint.numeric.operation import (BINARY, CORRECT, EXACT, FOLDED, UNARY, Array, Operation, Signature, Spellings,
                                         codegen_class, quiet, same_name, sympy_attr)
 
 
@@ -50,6 +50,13 @@ def _pow_partials(B: Any, a: Sequence[Array], out: Array) -> tuple[Any, ...]:
     positive = B.where(base > 0, True, False)
     safe = B.where(positive, base, 1.0)
     return expo * B.where(base != 0, out / B.where(base != 0, base, 1.0), 0.0), B.where(positive, out * B.log(safe), 0.0)
+
+
+def _clip_partials(B: Any, a: Sequence[Array], out: Array) -> tuple[Any, ...]:
+    """clip(x, lo, hi) = min(max(x, lo), hi): follows x inside [lo, hi], else the bound it is clipped to."""
+    x, lo, hi = a
+    inner = B.where(B.where(x > lo, x, lo) < hi, 1.0, 0.0)  # ∂/∂max(x, lo): the upper bound does not bind
+    return inner * B.where(x > lo, 1.0, 0.0), inner * B.where(x < lo, 1.0, 0.0), 1.0 - inner
 
 
 def _sel(B: Any, cond: Array) -> tuple[Array, Array]:
@@ -201,6 +208,9 @@ def _record_list() -> list[Operation]:
                   keeps_integers=True,
                   sympy=_sympy("Max"), spellings=Spellings(numpy=("maximum", "fmax"), builtins=("max",)),
                   generated={"numpy": "maximum", "builtins": "max"}),
+        Operation("clip", "clip", Signature(3, 3), _np(np.clip), v(lambda x, a, b: min(max(x, a), b), 3),
+                  _clip_partials, EXACT, sympy=lambda sp: lambda x, a, b: sp.Min(sp.Max(x, a), b),
+                  spellings=Spellings(numpy=("clip",)), generated={"numpy": "clip"}),
         # A conversion to the node's own format (`np.float32(x)`, `x.astype(np.float16)`, a Python float meeting
         # a binary32 array): the reader writes it, rounding when the format is narrower than the operand's.
         Operation("cast", "the conversion", UNARY, _np(np.asarray), lambda a: a, lambda B, a, o: (1.0,), CORRECT,

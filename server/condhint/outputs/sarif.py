@@ -14,6 +14,7 @@ from condhint import __version__
 from condhint.expr import Span
 from condhint.findings import FileReport, Finding, Fix
 from condhint.kinds import KINDS
+from condhint.site import source_label
 from condhint.outputs.json_out import _clean
 
 SCHEMA = "https://docs.oasis-open.org/sarif/sarif/v2.1.0/errata01/os/schemas/sarif-schema-2.1.0.json"
@@ -85,7 +86,7 @@ def _properties(f: Finding, cell: int | None) -> dict[str, Any]:
         "digitsLost": f.digits_lost, "predictedDigitsLost": f.predicted_digits_lost,
         "measuredDigitsLost": f.measured_digits_lost, "fractionAffected": f.fraction_affected,
         "worstAt": dict(f.worst_at), "scope": f.scope, "expression": f.expression,
-        "inputs": {k: {"low": v.low, "high": v.high, "source": v.source, "uncertainty": v.uncertainty}
+        "inputs": {k: {"low": v.low, "high": v.high, "source": source_label(v.source), "uncertainty": v.uncertainty}
                    for k, v in f.inputs.items()},
         "resultUncertainty": f.result_uncertainty, "format": f.format,
     }

@@ -8,9 +8,11 @@ from __future__ import annotations
 import ast
 from typing import TYPE_CHECKING
 
-from condhint.expr import INPUT, Node
+from condhint.expr import Node
 from condhint.reading.names import INT_BUILTINS
-from condhint.reading.ranges import Context, range_call, range_constraint
+from condhint.reading.integers import literal_ints
+from condhint.reading.ranges import Constraint, Context, range_call, range_constraint
+from condhint.site import Interval
 from condhint.reading.targets import DEFS, bound_names, target_names
 
 if TYPE_CHECKING:
@@ -49,6 +51,12 @@ def walk_loop(w: "Walker", scope: str, stmt: ast.For | ast.AsyncFor | ast.While,
         elif names:  # enumerate: the first target is the index
             body_ctx.int_names.add(names[0])
             env[names[0]] = w.input(names[0], True)
+    elif not isinstance(stmt, ast.While) and isinstance(stmt.target, ast.Name) and literal_ints(stmt.iter):
+        values = literal_ints(stmt.iter) or [0]  # `for k in (1, 2, 4):` an integer in [1, 4]
+        body_ctx.int_names.add(stmt.target.id)
+        env[stmt.target.id] = w.input(stmt.target.id, True)
+        body_ctx.constraints.append(Constraint(stmt.target.id, Interval(min(values), max(values)), None, "range",
+                                               stmt.lineno))
     w.block(scope, stmt.body, env, body_ctx)
     w.block(scope, stmt.orelse, env, ctx.copy())
     for name in carried:

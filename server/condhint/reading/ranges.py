@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import ast
 import math
+import re
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
@@ -160,7 +161,10 @@ def site_ranges(nodes: list[Node], ctx: Context) -> tuple[dict[str, InputRange],
             base = InputRange(base.interval, base.source, base.line, base.uncertainty, base.uncertainty_abs, True)
         for c in ctx.constraints:
             if c.name == n.name and c.interval is not None:
-                base = base.narrowed(c.interval, c.source, c.line)
+                if base.source == WEAKEST:  # a default value's scale gives way to what the code says
+                    base = InputRange(c.interval, c.source, c.line, base.uncertainty, base.uncertainty_abs, base.is_int)
+                else:
+                    base = base.narrowed(c.interval, c.source, c.line)
         ranges[n.name] = base
     filters = tuple(c.filter for c in ctx.constraints
                     if c.filter is not None and _inputs_subset(c.filter.condition, ranges))
@@ -169,3 +173,100 @@ def site_ranges(nodes: list[Node], ctx: Context) -> tuple[dict[str, InputRange],
 
 def _inputs_subset(cond: Node, ranges: dict[str, InputRange]) -> bool:
     return all(n.name in ranges for n in topological(cond) if n.kind == INPUT)
+
+
+# ---- parameters: default values and docstrings ----------------------------------------------------------
+WEAKEST = "parameter default"  # the source every other one overrides
+SCALE_DECADES = 2  # a parameter defaulting to d is taken to range over |d|·10⁻² … |d|·10², with d's sign
+
+
+def parameter_constraints(fn: ast.FunctionDef | ast.AsyncFunctionDef | ast.Lambda) -> list[Constraint]:
+    """Ranges a function states about its parameters without a `# condhint:` comment: numpydoc parameter lines
+    ("alpha : float — 0 < alpha <= 1", "in [0, 1]", "positive", "non-negative"), else the conventional scale
+    of a float default value (`alpha=0.7`: within two decades of 0.7, positive)."""
+    args = fn.args
+    positional = [*args.posonlyargs, *args.args]
+    defaults = dict(zip((a.arg for a in positional[len(positional) - len(args.defaults):]), args.defaults))
+    defaults.update((a.arg, d) for a, d in zip(args.kwonlyargs, args.kw_defaults) if d is not None)
+    names = [a.arg for a in (*positional, *args.kwonlyargs)]
+    doc = ast.get_docstring(fn) if not isinstance(fn, ast.Lambda) else None
+    stated = docstring_intervals(doc, names) if doc else {}
+    out = []
+    for name in names:
+        if name in stated:
+            out.append(Constraint(name, stated[name], None, "docstring", fn.lineno))
+            continue
+        d = defaults.get(name)
+        value = _float_literal(d) if d is not None else None
+        if value is not None and value != 0 and math.isfinite(value):
+            lo, hi = abs(value) * 10.0**-SCALE_DECADES, abs(value) * 10.0**SCALE_DECADES
+            out.append(Constraint(name, Interval(lo, hi) if value > 0 else Interval(-hi, -lo), None,
+                                  WEAKEST, fn.lineno))
+    return out
+
+
+def _float_literal(e: ast.expr) -> float | None:
+    """The value of a float literal default (`0.7`, `-1e-3`); ints are counts, not scales."""
+    sign = 1.0
+    if isinstance(e, ast.UnaryOp) and isinstance(e.op, ast.USub):
+        sign, e = -1.0, e.operand
+    if isinstance(e, ast.Constant) and isinstance(e.value, float):
+        return sign * e.value
+    return None
+
+
+_NUM = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
+_OPS = {"<": ("<", "lt"), "<=": ("<=", "le"), "≤": ("<=", "le"), ">": (">", "gt"), ">=": (">=", "ge"),
+        "≥": (">=", "ge")}
+
+
+def docstring_intervals(doc: str, names: list[str]) -> dict[str, Interval]:
+    """Bounds numpydoc parameter descriptions state (a parameter's own lines only)."""
+    sections = _parameter_sections(doc, names)
+    out: dict[str, Interval] = {}
+    for name, text in sections.items():
+        found = _interval_in(text, name)
+        if found is not None and not found.empty:
+            out[name] = found
+    return out
+
+
+def _parameter_sections(doc: str, names: list[str]) -> dict[str, str]:
+    lines = doc.splitlines()
+    out: dict[str, str] = {}
+    current = None
+    for line in lines:
+        head = re.match(r"^(\w+)\s*:", line)
+        if head and not line.startswith((" ", "\t")):
+            current = head.group(1) if head.group(1) in names else None
+            if current is not None:
+                out[current] = line[head.end():]
+            continue
+        if current is not None and (line.startswith((" ", "\t")) or not line.strip()):
+            out[current] += " " + line.strip()
+        elif line.strip():
+            current = None
+    return out
+
+
+def _interval_in(text: str, name: str) -> Interval | None:
+    n = re.escape(name)
+    ops = "|".join(map(re.escape, _OPS))
+    m = re.search(rf"({_NUM})\s*({ops})\s*{n}\s*({ops})\s*({_NUM})", text)
+    if m and _OPS[m.group(2)][1] in ("lt", "le") and _OPS[m.group(3)][1] in ("lt", "le"):
+        return Interval(float(m.group(1)), float(m.group(4)), m.group(2) == "<", m.group(3) == "<")
+    m = re.search(rf"\b{n}\s*({ops})\s*({_NUM})", text)
+    if m:
+        return interval_of(_AST_OPS[_OPS[m.group(1)][0]](), float(m.group(2)))
+    m = re.search(rf"\bin\s*([\[(])\s*({_NUM})\s*,\s*({_NUM})\s*([\])])", text)
+    if m:
+        return Interval(float(m.group(2)), float(m.group(3)), m.group(1) == "(", m.group(4) == ")")
+    lowered = text.lower()
+    if re.search(r"\b(non-?negative|>= ?0)\b", lowered):
+        return Interval(0.0, math.inf)
+    if re.search(r"\b(strictly )?positive\b", lowered):
+        return Interval(0.0, math.inf, low_open=True)
+    return None
+
+
+_AST_OPS = {"<": ast.Lt, "<=": ast.LtE, ">": ast.Gt, ">=": ast.GtE}

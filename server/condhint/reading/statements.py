@@ -15,9 +15,10 @@ from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.formats import BINARY64, Format, promote
 from condhint.reading.comments import Clauses
 from condhint.reading.dtypes import format_of_annotation
+from condhint.reading.integers import int_annotation, int_default, used_as_integers
 from condhint.reading.expressions import BINOPS, Converter
 from condhint.reading.loops import walk_loop
-from condhint.reading.ranges import Context, assume, declared_ranges, site_ranges
+from condhint.reading.ranges import Constraint, Context, assume, declared_ranges, parameter_constraints, site_ranges
 from condhint.reading.targets import FUNCS, assignments, bound_names, exits, target_names
 from condhint.site import Binding, Site
 
@@ -105,16 +106,22 @@ class Walker:
         return out
 
     def _scope(self, name: str, body: list[ast.stmt], params: dict[str, Node], clauses: list[Clauses],
-               outer_env: dict[str, Node | None]) -> None:
+               outer_env: dict[str, Node | None], stated: list[Constraint] | tuple[Constraint, ...] = ()) -> None:
         env: dict[str, Node | None] = {**outer_env, **params}
-        self.block(name, body, env, Context(declared=declared_ranges(clauses), constraints=[]))
+        declared = declared_ranges(clauses)
+        ctx = Context(declared, [c for c in stated if c.name not in declared or declared[c.name].source == "default"])
+        self.block(name, body, env, ctx)
 
     def function(self, fn: ast.FunctionDef | ast.AsyncFunctionDef | ast.Lambda, qual: str,
                  outer_env: dict[str, Node | None]) -> None:
         params: dict[str, Node] = {}
         args = fn.args
-        for a in [*args.posonlyargs, *args.args, *args.kwonlyargs]:
-            is_int = isinstance(a.annotation, ast.Name) and a.annotation.id == "int"
+        positional = [*args.posonlyargs, *args.args]
+        defaults = dict(zip((a.arg for a in positional[len(positional) - len(args.defaults):]), args.defaults))
+        defaults.update((a.arg, d) for a, d in zip(args.kwonlyargs, args.kw_defaults) if d is not None)
+        counted = used_as_integers(fn.body if isinstance(fn.body, list) else [ast.Expr(fn.body)])
+        for a in [*positional, *args.kwonlyargs]:
+            is_int = int_annotation(a.annotation) or int_default(defaults.get(a.arg)) or a.arg in counted
             params[a.arg] = self.input(a.arg, is_int, fmt=format_of_annotation(a.annotation, self.names))
         for a in (args.vararg, args.kwarg):
             if a is not None:
@@ -130,7 +137,7 @@ class Walker:
         # Names the function rebinds are its own; the rest of the enclosing scope stays visible.
         own = bound_names(body, self.walrus)
         env = {k: v for k, v in outer_env.items() if k not in own}
-        self._scope(qual, body, params, clauses, env)
+        self._scope(qual, body, params, clauses, env, parameter_constraints(fn))
 
     def _class(self, stmt: ast.ClassDef, scope: str, env: dict[str, Node | None]) -> None:
         for sub in stmt.body:
@@ -230,7 +237,7 @@ class Walker:
                     env[t] = None  # sympy or mpmath objects, not binary64 numbers
             return
         node = self.scan(conv, value)
-        if isinstance(stmt, ast.AnnAssign) and isinstance(stmt.annotation, ast.Name) and stmt.annotation.id == "int":
+        if isinstance(stmt, ast.AnnAssign) and int_annotation(stmt.annotation):
             ctx.int_names.add(target_names(stmt.target)[0] if target_names(stmt.target) else "")
         for target in targets:
             if isinstance(target, ast.Name):
@@ -305,7 +312,10 @@ class Walker:
 
     # ---- sites ------------------------------------------------------------------------------------------
     def scan(self, conv: Converter, expr: ast.expr) -> Node | None:
-        """Convert an expression, making sites of its maximal numeric parts; returns its node."""
+        """Convert an expression, making sites of its maximal numeric parts; returns its node. Values only
+        formatted into a string (f-strings) are not analysed: their digits are for display."""
+        if isinstance(expr, ast.JoinedStr):
+            return None
         node = conv.convert(expr)
         if node is not None and node.kind not in (INPUT, CONST, "compare"):
             self._add_site(node, conv)

@@ -22,7 +22,7 @@ from condhint.numeric.analysis import Analysis, analyse
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
 from condhint.numeric.formats import BINARY64
 from condhint.numeric.operations import OPERATIONS
-from condhint.numeric.analysis import keep_where_guards_hold
+from condhint.numeric.inputs import keep_where_guards_hold
 from condhint.review.profile import Profile, input_names, profile, swept_input, sweep
 from condhint.site import Site
 

@@ -248,10 +248,12 @@ class Emitter:
     """Writes a DAG as Python source. `reuse(node)` gives the original text of an untouched node (or None);
     `names` maps nodes to the names they are bound to where the code is edited."""
 
-    def __init__(self, spelling: Spelling, reuse: Callable[[Node], str | None], names: dict[int, str]) -> None:
+    def __init__(self, spelling: Spelling, reuse: Callable[[Node], str | None], names: dict[int, str],
+                 rebound: set[str] | frozenset[str] = frozenset()) -> None:
         self.spelling = spelling
         self.reuse = reuse
         self.names = names
+        self.rebound = rebound  # names that no longer hold the inputs spelled with them (see writer)
 
     def text(self, node: Node) -> tuple[str, int]:
         return self._emit(node)
@@ -263,7 +265,10 @@ class Emitter:
         if original is not None:
             return _wrapped(original)
         if node.kind == INPUT:
-            return _wrapped(node.text or node.name or "")
+            text = node.text or node.name or ""
+            if text in self.rebound or text.split("[")[0] + "[" in self.rebound:
+                raise Unspellable(f"`{text}` holds another value here than the one the fix needs")
+            return _wrapped(text)
         if node.kind == CONST:
             return self._const(node)
         if node.kind in _OPS:

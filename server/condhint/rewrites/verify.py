@@ -24,7 +24,8 @@ import numpy as np
 from condhint.budget import OverBudget, run_with_budget
 from condhint.config import Config
 from condhint.expr import INPUT, Node, topological
-from condhint.numeric.analysis import digits_of, keep_where_guards_hold, metrics, rounds, site_ranges
+from condhint.numeric.analysis import digits_of, metrics, rounds
+from condhint.numeric.inputs import defined_ranges, keep_where_guards_hold
 from condhint.numeric.backends import F64_BACKEND
 from condhint.numeric.evaluate import BudgetExceeded, Deadline, forward, reverse
 from condhint.numeric.formats import Format
@@ -62,7 +63,8 @@ class Bench:
         self.u, self.total = self.format.unit_roundoff, self.format.digits
         root = site.root
         self.names = sorted({n.name for n in topological(root) if n.kind == INPUT})  # type: ignore[misc]
-        ranges = site_ranges(site, self.names)
+        seed = zlib.crc32(root.key().encode())
+        ranges = self.ranges = defined_ranges(site, topological(root), self.names, cfg, seed)
         formats = {n.name: n.format for n in topological(root) if n.kind == INPUT}
         cols, self.bounds = sample(ranges, self.names, cfg.samples, zlib.crc32(root.key().encode()),
                                    cfg.default_range, formats)  # type: ignore[arg-type]
@@ -173,10 +175,38 @@ class Bench:
         if worse > MAX_WORSE:
             ev.reason = f"worse than the original by {worse:.2f} digits somewhere"
             return ev
+        unsure = self.unsigned_disagreement(candidate_root, idx, tol, deadline)
+        if unsure is not None:
+            ev.reason = unsure
+            return ev
         ev.ok = True
         if not approximate:
             ev.proven = prove(target, replacement, self, proof_seconds)
         return ev
+
+    def unsigned_disagreement(self, candidate_root: Node, idx: np.ndarray, tol: float,
+                              deadline: Deadline | None) -> str | None:
+        """Why the candidate is not equivalent at the other sign of inputs whose sign the code does not fix
+        (their range is assumed, and sampled positive), or None. The code may see either sign there."""
+        free = [k for k in self.names if self.ranges[k].source == "default" and not self.ranges[k].is_int
+                and bool(np.all(self.cols[k] >= 0))]
+        if not free:
+            return None
+        pts = idx[:: max(1, len(idx) // 8)][:8]
+        flips = [set(free)] + ([{k} for k in free] if 1 < len(free) <= 3 else [])
+        for flip in flips:
+            cols = {k: (-v[pts] if k in flip else v[pts]) for k, v in self.cols.items()}
+            try:
+                orig, dps = reference_values(topological(self.site.root), cols, len(pts), deadline)
+                cand, _ = reference_values(topological(candidate_root), cols, len(pts), deadline)
+            except BudgetExceeded:
+                return "not checked at negative inputs within the time budget"
+            with mpmath.workdps(dps):
+                for r, c in zip(orig[id(self.site.root)], cand[id(candidate_root)]):
+                    if not mpmath.isnan(r) and not _agree(r, c, tol):
+                        names = ", ".join(sorted(flip))
+                        return f"equivalent only where {names} > 0, which the code does not establish"
+        return None
 
     def _lost(self, approx: float, exact: Any) -> float:
         if not math.isfinite(approx):

@@ -28,6 +28,7 @@ class Writer:
         self.style = _style(index.tree)
         self.site_nodes = topological(site.root)
         self.names = visible_names(index, constants, site, target)
+        self.rebound = rebound_names(index, target)
 
     def reuse(self, node: Node) -> str | None:
         if node.kind == INPUT or node.span is None or not node.text or node is self.target:
@@ -40,7 +41,7 @@ class Writer:
         """The replacement text, the imports it needs, and the span it replaces (the target's, widened over
         grouping parentheses that a call or a name no longer needs)."""
         spelling = codegen.Spelling.for_site(self.style, self.site_nodes)
-        text, prec = codegen.Emitter(spelling, self.reuse, self.names).text(replacement)
+        text, prec = codegen.Emitter(spelling, self.reuse, self.names, self.rebound).text(replacement)
         span = self.target.span
         assert span is not None
         grouping = self._grouping(span)
@@ -91,6 +92,15 @@ def visible_names(index: "ModuleIndex", constants: dict[str, Node], site: Site, 
     return out
 
 
+def rebound_names(index: "ModuleIndex", target: Node) -> set[str]:
+    """Names (and `name.attr`, and names whose items are assigned) given a new value between the start of the
+    definition holding `target` and `target`'s line: there an input spelled with that name is not what the name
+    holds any more (`factor += 1` before `factor ** n - 1`), so a fix must not write it."""
+    assert target.span is not None
+    start, line = index.unit_at(target.span.line).start, target.span.line
+    return {name for name, lines in _stores(index.tree).items() if any(start <= ln < line for ln in lines)}
+
+
 _STORES: dict[int, tuple[ast.Module, dict[str, list[int]]]] = {}
 _STYLES: dict[int, tuple[ast.Module, codegen.Style]] = {}
 
@@ -116,6 +126,10 @@ def _stores(tree: ast.Module) -> dict[str, list[int]]:
     for n in ast.walk(tree):
         if isinstance(n, ast.Name) and isinstance(n.ctx, ast.Store):
             out.setdefault(n.id, []).append(n.lineno)
+        elif isinstance(n, ast.Attribute) and isinstance(n.ctx, ast.Store) and isinstance(n.value, ast.Name):
+            out.setdefault(f"{n.value.id}.{n.attr}", []).append(n.lineno)
+        elif isinstance(n, ast.Subscript) and isinstance(n.ctx, ast.Store) and isinstance(n.value, ast.Name):
+            out.setdefault(f"{n.value.id}[", []).append(n.lineno)  # any item of it
     if len(_STORES) > 8:
         _STORES.clear()
     _STORES[id(tree)] = (tree, out)

@@ -1,0 +1,158 @@
+"""Trust on code nobody annotated: integers, objects that are not floats, ranges the code states, quiet when
+unsure. Each behaviour has a case that must fire and one that must not (check values named per test)."""
+from __future__ import annotations
+
+import textwrap
+
+import pytest
+
+from condhint.config import Config
+from condhint.engine import analyse_module
+
+CFG = Config(kappa_formula=False)
+
+
+def analysed(src: str, cfg: Config = CFG):
+    return analyse_module(textwrap.dedent(src), "t.py", cfg, cache=None)
+
+
+def codes(src: str, min_severity: str = "info") -> list[str]:
+    return [f.code for f in analysed(src).report.findings
+            if {"info": 1, "warning": 2, "error": 3}[f.severity] >= {"info": 1, "warning": 2, "error": 3}[min_severity]]
+
+
+def inputs_of(src: str) -> dict[str, tuple[float, float, str, bool]]:
+    (site,) = analysed(src).sites
+    return {k: (r.interval.low, r.interval.high, r.source, r.is_int) for k, r in site.ranges.items()}
+
+
+# ---- integers ----------------------------------------------------------------------------------------------------
+# `(n + m) - n` loses m's digits when m is small against n (n = 1e6, m = 1e-6: 12 digits), and is exact for
+# integers (common practice): it fires only when the inputs may be floats.
+CANCELS = "(n + m) - n"
+
+
+@pytest.mark.parametrize("header, body", [
+    ("def f(n: int, m: int):", ""),
+    ("def f(n=10, m=3):", ""),                                # int literal defaults
+    ("def f(n, m, a):", "    x = a[n] + a[m]\n"),              # used as indices
+    ("def f(n, m, a):", "    x = a[m: n - 1]\n"),              # slice bounds
+    ("def f(n, m):", "    pad = (n - 1) * ' ' + [0] * m\n"),   # repetition counts of a str and a list
+    ("def f(n, m):", "    grid = np.zeros(n) + np.ones(m)\n"), # array lengths
+    ("def f(n: np.int64, m: np.intp):", ""),                  # numpy integer annotations
+])
+def test_what_the_code_uses_as_an_integer_is_exact(header: str, body: str) -> None:
+    src = f"import numpy as np\n{header}\n{body}    return {CANCELS}\n"
+    assert codes(src) == []
+    floaty = f"import numpy as np\ndef f(n, m):\n    return {CANCELS}\n"
+    assert codes(floaty) == ["CH101"]  # the same expression with nothing saying n and m are integers
+
+
+@pytest.mark.parametrize("value", ["np.argmax(a)", "a.nonzero()[0].max() + 1", "np.arange(10)[3]", "round(a)",
+                                   "math.comb(a, 3)", "len(a) // 2"])
+def test_calls_that_return_integers_are_exact(value: str) -> None:
+    src = f"import math\nimport numpy as np\ndef f(a, b):\n    n = {value}\n    m = np.argmin(b)\n" \
+          "    return (n + m) - n\n"
+    assert codes(src) == []
+
+
+def test_round_with_digits_is_a_float() -> None:
+    # round(x, 2) returns a float (Python's documentation): its cancellation is real
+    assert codes("def f(a, b):\n    n = round(a, 2)\n    m = round(b, 3)\n    return (n + m) - n\n") == ["CH101"]
+
+
+def test_loop_over_a_literal_tuple_of_ints() -> None:
+    src = "def f(m: int):\n    s = 0.0\n    for n in (1, 2, 4):\n        s = (n + m) - n\n    return s\n"
+    assert codes(src) == []
+    assert codes("def f(ns, m):\n    for n in ns:\n        s = (n + m) - n\n    return s\n") == ["CH101"]
+
+
+def test_values_only_formatted_into_strings_are_not_analysed() -> None:
+    assert codes("def f(n, m):\n    return f'{(n + m) - n} parameters'\n") == []
+    assert codes("def f(n, m):\n    return str((n + m) - n)\n") == ["CH101"]
+
+
+# ---- objects that are not binary64 numbers --------------------------------------------------------------------------
+def test_objects_of_unknown_classes_are_not_analysed() -> None:
+    # a time or a quantity of another library: its arithmetic is not binary64's (design §2)
+    assert codes("from astro import Time\ndef f(a, m):\n    n = Time(a)\n    return (n + m) - n\n") == []
+    assert codes("def f(a, m):\n    n = make_time(a)\n    return (n + m) - n\n") == ["CH101"]
+
+
+# ---- ranges from the code ------------------------------------------------------------------------------------------
+def test_a_float_default_gives_a_scale_and_a_declaration_wins() -> None:
+    (lo, hi, source, _), = inputs_of("import math\ndef f(alpha=0.7):\n    return math.exp(alpha) - 1\n").values()
+    assert (lo, hi) == pytest.approx((0.007, 70.0)) and source == "parameter default"  # two decades either side
+    declared = inputs_of("import math\ndef f(alpha=0.7):  # condhint: 1e-9 <= alpha <= 1e-6\n"
+                         "    return math.exp(alpha) - 1\n")
+    assert declared["alpha"][:3] == (1e-9, 1e-6, "comment")
+    guarded = inputs_of("import math\ndef f(alpha=0.7):\n    assert alpha < 1e-5\n    return math.exp(alpha) - 1\n")
+    assert guarded["alpha"][1] == 1e-5 and guarded["alpha"][2] == "assert"  # the code's own bound, not the scale
+
+
+def test_numpydoc_parameter_lines_state_ranges() -> None:
+    src = '''
+        import math
+        def f(alpha, beta):
+            """Smoothing.
+
+            Parameters
+            ----------
+            alpha : float
+                Smoothing factor, 0 < alpha <= 1.
+            beta : float
+                Must be positive.
+            """
+            return math.exp(alpha) - beta
+        '''
+    got = inputs_of(src)
+    assert got["alpha"][:3] == (0.0, 1.0, "docstring") and got["beta"][:3] == (0.0, float("inf"), "docstring")
+
+
+def test_clip_bounds_what_follows() -> None:
+    # np.clip(x, 1e-9, 1e-6) keeps log(1 + x) in the regime where it loses digits (Goldberg 1991); a clip to
+    # [1, 10] keeps it where it loses none
+    small = "import numpy as np\ndef f(x):\n    y = np.clip(x, 1e-9, 1e-6)\n    return np.log(1 + y)\n"
+    assert codes(small) == ["CH101"]
+    large = "import numpy as np\ndef f(x):\n    y = np.clip(x, 1.0, 10.0)\n    return np.log(1 + y)\n"
+    assert codes(large) == []
+
+
+def test_inputs_are_sampled_where_the_code_is_defined() -> None:
+    # log(1 - exp(x)) is defined only for x < 0 (a log-likelihood); for x → -∞, 1 - exp(x) rounds to 1 and the
+    # result (≈ -exp(x)) loses every digit (Mächler's note on log1mexp, from memory; mpmath in test_formats)
+    (f,) = analysed("import numpy as np\ndef f(llf):\n    return np.log(1 - np.exp(llf))\n").report.findings
+    assert f.code == "CH101" and f.worst_at["llf"] < 0 and f.inputs["llf"].high < 0
+
+
+# ---- quiet when unsure -------------------------------------------------------------------------------------------
+def test_a_loss_only_at_the_ends_of_an_assumed_range_is_information() -> None:
+    # sqrt(x + 1) - sqrt(x) loses about log10(4x) digits (common practice): over 1e-6..1e6 that reaches
+    # 6.6 digits only toward x = 1e6; at ordinary magnitudes (≤ 1e3) at most 3.6
+    (f,) = analysed("import math\ndef f(x):\n    return math.sqrt(x + 1) - math.sqrt(x)\n").report.findings
+    assert f.severity == "info" and "declare the real range" in f.message and "`x`" in f.message
+    (g,) = analysed("import math\ndef f(x):  # condhint: 1e5 <= x <= 1e6\n"
+                    "    return math.sqrt(x + 1) - math.sqrt(x)\n").report.findings
+    assert g.severity == "warning" and "declare" not in g.message
+
+
+def test_a_loss_at_ordinary_magnitudes_keeps_its_severity() -> None:
+    # 1 - cos(x) loses about log10(2/x²) digits for small x (NIST DLMF 4.21 half-angle form as the remedy): 6.3 at
+    # x = 1e-3, an ordinary magnitude
+    (f,) = analysed("import math\ndef f(x):\n    return 1 - math.cos(x)\n").report.findings
+    assert f.severity in ("warning", "error") and "declare" not in f.message
+
+
+def test_ranges_are_named_declared_inferred_or_assumed_in_json() -> None:
+    rep = analysed("import math\ndef f(x, y):  # condhint: 1e-9 <= y <= 1e-6\n    assert x > 1\n"
+                   "    return math.exp(y) - 1 + x - x\n").report
+    doc = rep.findings[0].to_dict()["inputs"]
+    assert doc["y"]["source"] == "declared" and doc["x"]["source"] == "inferred (assert)"
+
+
+# ---- categories ----------------------------------------------------------------------------------------------------
+def test_inf_times_zero_is_an_overflow_not_a_domain_error() -> None:
+    # exp(750) overflows binary64 (largest 1.8e308, IEEE 754-2019) and exp(-750) underflows to 0: inf * 0 = nan
+    (f,) = analysed("import math\ndef f(x):  # condhint: 750 <= x <= 800\n"
+                    "    return math.exp(x) * math.exp(-x) * x\n").report.findings
+    assert f.code == "CH301" and f.expression == "math.exp(x)"
