@@ -16,7 +16,9 @@ from condhint.reading.comments import Clauses
 from condhint.reading.expressions import BINOPS, Converter
 from condhint.reading.loops import walk_loop
 from condhint.reading.ranges import Context, assume, declared_ranges, site_ranges
+from condhint.reading.recurrences import read_recurrence
 from condhint.reading.targets import FUNCS, assignments, bound_names, exits, target_names
+from condhint.recurrence import Recurrence
 from condhint.site import Binding, Site
 
 if TYPE_CHECKING:
@@ -41,6 +43,7 @@ class Walker:
         self._claimed: set[int] = set()
         self._bindings: dict[int, Binding] = {}
         self._inputs: dict[str, dict[str, Node]] = {}
+        self.recurrences: list[Recurrence] = []  # loops read as recurrences (`reading/recurrences.py`)
 
     # ---- units and scopes -------------------------------------------------------------------------------
     def walk(self, unit: "Unit") -> list[Site]:
@@ -157,6 +160,9 @@ class Walker:
             assume(conv, stmt.test, True, ctx, "assert", stmt.lineno)
             return
         if isinstance(stmt, (ast.For, ast.AsyncFor, ast.While)):
+            rec = read_recurrence(self, scope, stmt, env, ctx) if isinstance(stmt, ast.For) else None
+            if rec is not None:
+                self.recurrences.append(rec)  # measured over its trip count (`numeric/loops.py`)
             walk_loop(self, scope, stmt, env, ctx, conv)
             return
         if isinstance(stmt, (ast.With, ast.AsyncWith)):

@@ -1,0 +1,124 @@
+"""Loops read as recurrences -> findings and verified fixes.
+
+Accumulated rounding and cancellation inside a series are CH101 avoidable-loss (a different computation
+avoids them); an error that grows geometrically from step to step is CH102 unstable-recurrence. The one fix
+offered, counting instead of accumulating a fixed increment (`t = t0 + (i + 1) * dt`), is verified by the
+same measurement as the finding: it is kept only when it loses at least a digit less at the worst sample.
+"""
+from __future__ import annotations
+
+from dataclasses import replace
+from typing import Any
+
+from condhint.config import Config
+from condhint.expr import CONST, INPUT, Node, topological
+from condhint.findings import Finding, Fix, InputInfo
+from condhint.kinds import BY_CODE
+from condhint.loop_messages import LoopFacts, accumulation_message, recurrence_message, series_message
+from condhint.numeric.evaluate import BudgetExceeded, Deadline
+from condhint.numeric.loops import LoopAnalysis, analyse_loop
+from condhint.recurrence import Recurrence
+from condhint.site_findings import not_analysed
+
+LOOP = "#loop"  # a loop finding's origin is "<unit key>#loop<number>"
+_NONE: Any = object()  # cached "nothing to report"
+
+
+def loop_number(origin: str) -> int | None:
+    """The loop a finding's origin names (its index among the unit's recurrences), or None."""
+    _, mark, number = origin.rpartition(LOOP)
+    return int(number) if mark and number.isdigit() else None
+
+
+def measure(rec: Recurrence, cfg: Config, cache: Any = None, only: str | None = None) -> LoopAnalysis | None:
+    """The loop's measurement, from `cache` (get/put by key, like `engine.Lru`) when there."""
+    key = f"{rec.key()}|{only}|{cfg.thresholds}|{cfg.default_range}"
+    hit = cache.get(key) if cache is not None else None
+    if hit is not None:
+        return None if hit is _NONE else hit
+    a = analyse_loop(rec, cfg, Deadline(cfg.site_budget), only)
+    if cache is not None:
+        cache.put(key, _NONE if a is None else a)
+    return a
+
+
+def loop_findings(recs: list[Recurrence], cfg: Config, path: str, key: str, cache: Any = None) -> list[Finding]:
+    out: list[Finding] = []
+    for number, rec in enumerate(recs):
+        try:
+            a = measure(rec, cfg, cache)
+        except BudgetExceeded:
+            out.append(not_analysed(path, rec.span, f"loop not analysed: iterating it exceeded the time budget of "
+                                    f"{cfg.site_budget:g} s", rec.scope))
+            continue
+        except (MemoryError, OverflowError, ValueError, ZeroDivisionError) as exc:
+            out.append(not_analysed(path, rec.span, f"loop not analysed: {type(exc).__name__}: {exc}", rec.scope))
+            continue
+        if a is None:
+            continue
+        f = _finding(rec, a, cfg, path, f"{key}{LOOP}{number}")
+        if f is not None:
+            out.append(f)
+    return out
+
+
+def _finding(rec: Recurrence, a: LoopAnalysis, cfg: Config, path: str, origin: str) -> Finding | None:
+    kind = BY_CODE["CH102" if a.kind == "unstable" else "CH101"]
+    severity = kind.severity(a, cfg)
+    if severity is None:
+        return None
+    carried = next(c for c in rec.carried if c.name == a.name)
+    facts = LoopFacts(rec, a, carried, cfg)
+    build = recurrence_message if a.kind == "unstable" else series_message if a.kind == "series" else \
+        accumulation_message
+    inputs = {k: InputInfo(r.interval.low, r.interval.high, r.source, r.uncertainty)
+              for k, r in rec.ranges.items() if k in set(rec.outer_inputs()) | set(rec.elements)}
+    related = [(rec.span.line, f"the loop runs up to {rec.trips} times ({rec.trips_source})")]
+    return Finding(path=path, span=carried.statement, code=kind.code, severity=severity, message=build(facts),
+                   expression=carried.text, category=kind.category, digits_lost=a.digits,
+                   measured_digits_lost=a.measured_digits, inputs=inputs, worst_at=a.worst_at,
+                   fraction_affected=a.fraction, related=related, scope=rec.scope, origin=origin)
+
+
+# ---- the fix: count instead of accumulating ---------------------------------------------------------------
+def loop_fixes(rec: Recurrence, finding: Finding, cfg: Config, cache: Any = None) -> list[Fix]:
+    """`t += dt` (t starting at a literal, dt fixed during the loop, `for i in range(start, stop)`) becomes
+    `t = t0 + (i - start + 1) * dt`: the same value at every step up to rounding. Kept only when measured at
+    least one digit better at the worst sample."""
+    carried = next((c for c in rec.carried if c.statement == finding.span), None)
+    if carried is None or rec.counter is None or rec.stride != 1 or carried.initial.kind != CONST:
+        return []
+    up = carried.update
+    if up.kind != "add" or up.args[0].kind != INPUT or up.args[0].name != carried.name:
+        return []
+    inc = up.args[1]
+    moving = {*rec.state_names, rec.counter, *rec.elements}
+    if any(n.kind == INPUT and n.name in moving for n in topological(inc)) or not inc.text:
+        return []
+    i, done = rec.counter, 1 - rec.start
+    count = i if done == 0 else f"({i} + {done})" if done > 0 else f"({i} - {-done})"
+    step = inc.text if inc.is_leaf else f"({inc.text})"
+    expr = f"{count} * {step}" if carried.initial.value == 0 else f"{carried.initial.text} + {count} * {step}"
+    counted = _counted(rec, carried.name, done, inc, carried.initial)
+    try:
+        before = measure(rec, cfg, cache)
+        after = measure(counted, cfg, cache, only=carried.name)
+    except (BudgetExceeded, MemoryError, OverflowError, ValueError, ZeroDivisionError):
+        return []
+    if before is None or after is None or before.name != carried.name or after.digits > before.digits - 1.0:
+        return []
+    return [Fix(title=f"Count steps instead of accumulating: {carried.name} = {expr}",
+                replacement=f"{carried.name} = {expr}", span=carried.statement,
+                measured_digits_lost_after=after.digits, measured_digits_lost_before=before.digits,
+                rule="loop-counting")]
+
+
+def _counted(rec: Recurrence, name: str, done: int, inc: Node, initial: Node) -> Recurrence:
+    """The loop with `name` computed from the counter: initial + (counter + done) * inc."""
+    i = Node(INPUT, name=rec.counter, text=rec.counter or "", is_int=True)
+    n = i if done == 0 else Node("add", (i, Node(CONST, value=float(done), exact=str(done), is_int=True)), is_int=True)
+    value = Node("mul", (n, inc))
+    if initial.value != 0:
+        value = Node("add", (initial, value))
+    carried = tuple(replace(c, update=value) if c.name == name else c for c in rec.carried)
+    return replace(rec, carried=carried)
