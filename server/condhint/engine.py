@@ -346,6 +346,7 @@ def analyse_module(text: str, path: str, cfg: Config, cache: AnalysisCache | Non
             progress(i + 1, len(index.units))
     if left and units is None:
         report.findings.append(_budget_left(path, left, cfg))
+    report.findings = _worst_per_range(report.findings)
     _apply_suppressions(report, index.comments)
     report.findings = [f for f in report.findings if SEVERITY_RANK[f.severity] >= SEVERITY_RANK[cfg.min_severity]]
     report.findings.sort(key=lambda f: (f.span.line, f.span.col, f.code))
@@ -374,6 +375,21 @@ def kappa_formula(site: Site, cfg: Config, root: Node | None = None) -> str | No
             text = None
     _FORMULAS.put(key, text or _NO_FORMULA)
     return text
+
+
+def _worst_per_range(findings: list[Finding]) -> list[Finding]:
+    """One finding per flagged range and code: a function's own finding and the one its callers see through
+    inlining (with their ranges) can fall on the same operation; the larger loss is kept."""
+    best: dict[tuple[Span, str], Finding] = {}
+    out: list[Finding] = []
+    for f in findings:
+        if f.code == NOT_ANALYSED.code:
+            out.append(f)
+            continue
+        prev = best.get((f.span, f.code))
+        if prev is None or (f.digits_lost or 0) > (prev.digits_lost or 0):
+            best[(f.span, f.code)] = f
+    return out + list(best.values())
 
 
 def _apply_suppressions(report: FileReport, comments: list[Clauses]) -> None:

@@ -6,6 +6,7 @@ from typing import TYPE_CHECKING
 
 from condhint.expr import CONST, SELECT, Node
 from condhint.numeric.operations import OPERATIONS
+from condhint.reading.inline import inline_call
 from condhint.reading.names import INT_BUILTINS, literal_number
 
 if TYPE_CHECKING:
@@ -23,6 +24,10 @@ def convert_call(conv: "Converter", e: ast.Call) -> Node | None:
         span = source.span(e)
         return Node(CONST, value=float(exact), exact=exact, span=span, text=source.segment(span))
     fid = names.function(e.func)
+    if fid is None and isinstance(e.func, ast.Name) and e.func.id in conv.w.index.definitions:
+        inlined = inline_call(conv, e)  # one of the module's own functions (`inline.py`)
+        if inlined is not None:
+            return inlined
     if isinstance(e.func, ast.Name) and e.func.id in INT_BUILTINS and e.func.id not in conv.env:
         return conv.opaque(e, True)
     if fid is None or any(isinstance(a, ast.Starred) for a in e.args) or any(

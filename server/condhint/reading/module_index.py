@@ -84,6 +84,11 @@ class ModuleIndex:
             by_name.setdefault(u.name, []).append(u)
         return by_name
 
+    @property
+    def definitions(self) -> dict[str, list[Unit]]:
+        """Top-level definitions by name (a name defined twice has two)."""
+        return self._definitions
+
     def calls(self, unit: Unit) -> frozenset[str]:
         """The top-level definitions a unit calls by name."""
         found = self._calls.get(unit)

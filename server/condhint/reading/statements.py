@@ -14,6 +14,7 @@ from condhint.expr import CONST, INPUT, Node, Span, topological
 from condhint.numeric.operations import OPERATIONS
 from condhint.reading.comments import Clauses
 from condhint.reading.expressions import BINOPS, Converter
+from condhint.reading.inline import Call
 from condhint.reading.loops import walk_loop
 from condhint.reading.ranges import Context, assume, declared_ranges, site_ranges
 from condhint.reading.recurrences import read_recurrence
@@ -44,6 +45,11 @@ class Walker:
         self._bindings: dict[int, Binding] = {}
         self._inputs: dict[str, dict[str, Node]] = {}
         self.recurrences: list[Recurrence] = []  # loops read as recurrences (`reading/recurrences.py`)
+        # calls into the module's own functions (`reading/inline.py`): which are inlinable, the chain of calls
+        # being inlined, and the chain each inlined operation came through
+        self.inlinable: dict[str, ast.FunctionDef | None] = {}
+        self.calling: list[Call] = []
+        self.inlined: dict[int, tuple[Call, ...]] = {}
 
     # ---- units and scopes -------------------------------------------------------------------------------
     def walk(self, unit: "Unit") -> list[Site]:
@@ -318,10 +324,11 @@ class Walker:
             return
         ranges, filters = site_ranges(nodes, conv.ctx)
         bindings = {id(n): self._bindings[id(n)] for n in nodes if id(n) in self._bindings}
+        inlined = {id(n): self.inlined[id(n)] for n in nodes if id(n) in self.inlined} if self.inlined else {}
         self.sites.append(Site(root=root, scope=conv.scope, span=root.span, statement_line=conv.stmt.lineno,
                                ranges=ranges, filters=filters,
                                bindings=tuple(sorted(set(bindings.values()), key=lambda b: b.line)),
-                               bindings_by_node=bindings))
+                               bindings_by_node=bindings, inlined=inlined))
 
 
 def _union(intervals: list[tuple[int, int]]) -> list[tuple[int, int]]:
