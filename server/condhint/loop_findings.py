@@ -16,8 +16,8 @@ from condhint.findings import Finding, Fix, InputInfo
 from condhint.kinds import BY_CODE
 from condhint.loop_messages import LoopFacts, accumulation_message, recurrence_message, series_message
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
-from condhint.numeric.loops import LoopAnalysis, analyse_loop
-from condhint.recurrence import Recurrence
+from condhint.numeric.loops import LoopAnalysis, analyse_loop, fsum_digits
+from condhint.recurrence import Carried, Recurrence
 from condhint.site_findings import not_analysed
 
 LOOP = "#loop"  # a loop finding's origin is "<unit key>#loop<number>"
@@ -82,35 +82,60 @@ def _finding(rec: Recurrence, a: LoopAnalysis, cfg: Config, path: str, origin: s
 
 # ---- the fix: count instead of accumulating ---------------------------------------------------------------
 def loop_fixes(rec: Recurrence, finding: Finding, cfg: Config, cache: Any = None) -> list[Fix]:
+    """Verified fixes for a loop finding: counting instead of accumulating, or `math.fsum` of an array."""
+    carried = next((c for c in rec.carried if c.statement == finding.span), None)
+    if carried is None or carried.initial.kind != CONST:
+        return []
+    try:
+        before = measure(rec, cfg, cache)
+        if before is None or before.name != carried.name:
+            return []
+        return [f for f in (_counting(rec, carried, before, cfg, cache), _fsum(rec, carried, before, cfg)) if f]
+    except (BudgetExceeded, MemoryError, OverflowError, ValueError, ZeroDivisionError):
+        return []
+
+
+def _fsum(rec: Recurrence, carried: Carried, before: LoopAnalysis, cfg: Config) -> Fix | None:
+    """`for x in xs: s += x` (s starting at 0, nothing else in the loop, x unused after it) becomes
+    `s = math.fsum(xs)`: the exact sum correctly rounded, instead of a rounding at every step."""
+    up = carried.update
+    if not (rec.replaceable and rec.iterated and len(rec.carried) == 1 and carried.initial.value == 0
+            and up.kind == "add" and up.args[0].kind == INPUT and up.args[0].name == carried.name
+            and up.args[1].kind == INPUT and rec.elements == (up.args[1].name,) and not rec.outer_inputs()):
+        return None
+    after = fsum_digits(rec, cfg, rec.elements[0])
+    if after > before.digits - 1.0:
+        return None
+    replacement = f"{carried.name} = math.fsum({rec.iterated})"
+    return Fix(title=f"Sum with math.fsum (correctly rounded): {replacement}", replacement=replacement,
+               span=rec.span, imports=["import math"], measured_digits_lost_after=after,
+               measured_digits_lost_before=before.digits, rule="loop-fsum")
+
+
+def _counting(rec: Recurrence, carried: Carried, before: LoopAnalysis, cfg: Config, cache: Any) -> Fix | None:
     """`t += dt` (t starting at a literal, dt fixed during the loop, `for i in range(start, stop)`) becomes
     `t = t0 + (i - start + 1) * dt`: the same value at every step up to rounding. Kept only when measured at
     least one digit better at the worst sample."""
-    carried = next((c for c in rec.carried if c.statement == finding.span), None)
-    if carried is None or rec.counter is None or rec.stride != 1 or carried.initial.kind != CONST:
-        return []
+    if rec.counter is None or rec.stride != 1:
+        return None
     up = carried.update
     if up.kind != "add" or up.args[0].kind != INPUT or up.args[0].name != carried.name:
-        return []
+        return None
     inc = up.args[1]
     moving = {*rec.state_names, rec.counter, *rec.elements}
     if any(n.kind == INPUT and n.name in moving for n in topological(inc)) or not inc.text:
-        return []
+        return None
     i, done = rec.counter, 1 - rec.start
     count = i if done == 0 else f"({i} + {done})" if done > 0 else f"({i} - {-done})"
     step = inc.text if inc.is_leaf else f"({inc.text})"
     expr = f"{count} * {step}" if carried.initial.value == 0 else f"{carried.initial.text} + {count} * {step}"
-    counted = _counted(rec, carried.name, done, inc, carried.initial)
-    try:
-        before = measure(rec, cfg, cache)
-        after = measure(counted, cfg, cache, only=carried.name)
-    except (BudgetExceeded, MemoryError, OverflowError, ValueError, ZeroDivisionError):
-        return []
-    if before is None or after is None or before.name != carried.name or after.digits > before.digits - 1.0:
-        return []
-    return [Fix(title=f"Count steps instead of accumulating: {carried.name} = {expr}",
-                replacement=f"{carried.name} = {expr}", span=carried.statement,
-                measured_digits_lost_after=after.digits, measured_digits_lost_before=before.digits,
-                rule="loop-counting")]
+    after = measure(_counted(rec, carried.name, done, inc, carried.initial), cfg, cache, only=carried.name)
+    if after is None or after.digits > before.digits - 1.0:
+        return None
+    return Fix(title=f"Count steps instead of accumulating: {carried.name} = {expr}",
+               replacement=f"{carried.name} = {expr}", span=carried.statement,
+               measured_digits_lost_after=after.digits, measured_digits_lost_before=before.digits,
+               rule="loop-counting")
 
 
 def _counted(rec: Recurrence, name: str, done: int, inc: Node, initial: Node) -> Recurrence:

@@ -38,6 +38,8 @@ class Recurrence:
     stride: int = 1
     elements: tuple[str, ...] = ()  # per-step inputs (`for x in xs`, `xs[i]`): sampled afresh at every step
     ranges: dict[str, InputRange] = field(default_factory=dict)  # of the names fixed during the loop and elements
+    iterated: str | None = None  # `for x in xs`: xs
+    replaceable: bool = False  # the body is one statement and the loop's target is not used outside the loop
 
     @property
     def state_names(self) -> tuple[str, ...]:

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import math
 import zlib
+from fractions import Fraction
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -29,6 +30,7 @@ CAP = 1000  # steps evaluated
 SAMPLES = 8  # samples of the inputs (plus the corners of their ranges)
 DPS = 50  # mpmath digits; raised when the reference itself cancels more than DPS - 20 digits
 _MP_RAW = MP()  # the mpmath backend, taking inputs already converted (carried values keep their precision)
+_GRID = 256  # points of the grid per-step elements are drawn through
 _STEEP = 8.0  # error growing more than this from step k to 2k (k ≥ 4) grows faster than any low power: unstable
 
 
@@ -57,14 +59,16 @@ class LoopAnalysis:
 
 def element_samples(rec: Recurrence, steps: int, n: int, seed: int, default: tuple[float, float]
                     ) -> dict[str, np.ndarray]:
-    """The values of each per-step input (`for x in xs`, `xs[i]`) at every step (steps × n): points over the
-    array's element range, shuffled afresh at every step."""
+    """The values of each per-step input (`for x in xs`, `xs[i]`) at every step (steps × n), drawn
+    independently over the array's element range with the sampling's own spread (log-uniform over decades):
+    uniform numbers mapped through the piecewise-linear interpolation of its grid of points."""
     out: dict[str, np.ndarray] = {}
     rng = np.random.default_rng(seed)
     for name in rec.elements:
         lo, hi = resolve(rec.ranges.get(name, InputRange(Interval(), "default")).interval, default)
-        base = points(lo, hi, max(n, 2)) if n > 1 else np.array([hi])
-        out[name] = np.stack([rng.permutation(base)[:n] for _ in range(steps)]) if steps else np.zeros((0, n))
+        grid = points(lo, hi, _GRID + 1)
+        draws = rng.random((steps, n)) * _GRID
+        out[name] = np.clip(np.interp(draws, np.arange(_GRID + 1), grid), lo, hi)
     return out
 
 
@@ -125,13 +129,7 @@ def analyse_loop(rec: Recurrence, cfg: Config, deadline: Deadline | None = None,
     floats = [c for c in rec.carried if not c.is_int and (rec.recurrent(c) if only is None else c.name == only)]
     if not floats or rec.trips < 1:
         return None
-    names = rec.outer_inputs()
-    ranges = {k: rec.ranges.get(k) or InputRange(Interval(), "default") for k in names}
-    seed = zlib.crc32(rec.key().encode())
-    cols, _ = sample(ranges, names, SAMPLES, seed, cfg.default_range) if names else ({}, {})
-    n = len(next(iter(cols.values()))) if cols else (SAMPLES if rec.elements else 1)
-    steps = min(rec.trips, CAP)
-    elements = element_samples(rec, steps, n, seed, cfg.default_range)
+    ranges, cols, n, steps, elements = _samples(rec, cfg)
     marks = checkpoints_for(steps)
     u, total = BINARY64.unit_roundoff, BINARY64.digits
     with np.errstate(all="ignore"):
@@ -148,6 +146,33 @@ def analyse_loop(rec: Recurrence, cfg: Config, deadline: Deadline | None = None,
             break
         dps = min(400, int(need) + 40)
     return _summarise(rec, cfg, floats, [k for k, _ in run64], err, norm, peak, cols, ranges)
+
+
+def _samples(rec: Recurrence, cfg: Config) -> tuple[dict[str, InputRange], dict[str, np.ndarray], int, int,
+                                                    dict[str, np.ndarray]]:
+    """The ranges and samples of the outer inputs, the sample count, the steps evaluated and the per-step
+    elements: the same for a loop and for every fix judged against it."""
+    names = rec.outer_inputs()
+    ranges = {k: rec.ranges.get(k) or InputRange(Interval(), "default") for k in names}
+    seed = zlib.crc32(rec.key().encode())
+    cols, _ = sample(ranges, names, SAMPLES, seed, cfg.default_range) if names else ({}, {})
+    n = len(next(iter(cols.values()))) if cols else (SAMPLES if rec.elements else 1)
+    steps = min(rec.trips, CAP)
+    return ranges, cols, n, steps, element_samples(rec, steps, n, seed, cfg.default_range)
+
+
+def fsum_digits(rec: Recurrence, cfg: Config, element: str) -> float:
+    """Worst digits lost by `math.fsum` of one per-step element over the loop's own samples (exact sums by
+    `fractions.Fraction`); fsum is correctly rounded (Shewchuk), so this holds for any length."""
+    _, _, n, _, elements = _samples(rec, cfg)
+    worst = 0.0
+    for j in range(n):
+        terms = [float(v) for v in elements[element][:, j]]
+        exact = sum((Fraction(t) for t in terms), Fraction(0))
+        if exact != 0:
+            err = float(abs(Fraction(math.fsum(terms)) - exact) / abs(exact))
+            worst = max(worst, math.log10(max(err, BINARY64.unit_roundoff) / BINARY64.unit_roundoff))
+    return worst
 
 
 def _errors(run64: list[tuple[int, dict[str, Any]]], runmp: list[tuple[int, dict[str, Any]]], floats: list[Any],

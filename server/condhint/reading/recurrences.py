@@ -70,6 +70,12 @@ def read_recurrence(w: "Walker", scope: str, stmt: ast.For, env: dict[str, Node 
             return None
         for name in _bound(st):
             last[name] = st
+    # A name the body binds without a value before the loop must be written before it is read in a step.
+    fresh = assigned - set(initial)
+    for name in initial:
+        node = step_env.get(name)
+        if node is not None and any(n.kind == INPUT and n.name in fresh for n in topological(node)):
+            return None
     carried = []
     for name, init in initial.items():
         node = step_env.get(name)
@@ -85,8 +91,19 @@ def read_recurrence(w: "Walker", scope: str, stmt: ast.For, env: dict[str, Node 
     ranges, _ = site_ranges(nodes, ctx)
     for name, array in elements.items():
         ranges[name] = _element_range(array, ctx)
+    iterated = stmt.iter.id if isinstance(stmt.iter, ast.Name) else None
     return Recurrence(tuple(carried), trips, how, w.source.span(stmt), scope, counter, start, stride,
-                      tuple(sorted(elements)), ranges)
+                      tuple(sorted(elements)), ranges, iterated,
+                      replaceable=len(stmt.body) == 1 and not _used_outside(w, stmt, target))
+
+
+def _used_outside(w: "Walker", loop: ast.For, name: str) -> bool:
+    """Whether `name` appears in the loop's unit outside the loop (a loop's target stays bound after it)."""
+    unit = w.index.unit_at(loop.lineno)
+    tree: ast.AST = unit.stmt if unit.stmt is not None else w.index.tree
+    end = loop.end_lineno or loop.lineno
+    return any(isinstance(n, ast.Name) and n.id == name and not loop.lineno <= n.lineno <= end
+               for n in ast.walk(tree))
 
 
 def _assigned(body: list[ast.stmt]) -> set[str] | None:
