@@ -21,6 +21,7 @@ from condhint.loop_findings import loop_findings
 from condhint.numeric.analysis import Analysis, analyse
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
 from condhint.reading.comments import Clauses
+from condhint.reading.imported import dependency_stamp
 from condhint.reading.module_index import ModuleIndex, Unit, read_module
 from condhint.reading.statements import Walker
 from condhint.recurrence import Recurrence
@@ -322,7 +323,9 @@ def analyse_module(text: str, path: str, cfg: Config, cache: AnalysisCache | Non
         for e in c.errors:
             report.findings.append(not_analysed(path, Span(c.line, 0, c.line, len(index.source.lines[c.line - 1])),
                                                 f"condhint comment not understood: {e}"))
-    settings = settings_key(cfg)
+    index.path = path
+    # a unit's analysis may depend on the package files its calls are inlined from (issue 15)
+    settings = settings_key(cfg) + dependency_stamp(text, path)
     budget = _Budget(cfg.file_budget)
     left: list[Site] = []
     for i, unit in enumerate(index.units):

@@ -7,6 +7,9 @@ import math
 import mpmath
 import pytest
 
+from condhint.config import Config
+from condhint.engine import AnalysisCache, UnitCache, analyse_module
+from condhint.reading.imported import dependency_stamp
 from tests.conftest import codes, findings
 
 U = 2.0**-53  # IEEE 754-2019 binary64 unit roundoff
@@ -103,3 +106,71 @@ def test_recursion_and_depth_are_bounded():
     assert [f for f in findings(deep) if f.scope == "top"] == []  # beyond MAX_DEPTH the call stays opaque
     near = deep.replace("return d4(t) * 2.0", "return d2(t) * 2.0")
     assert [f.span.line for f in findings(near) if f.scope == "top"] == [3]
+
+
+# ---- functions of other modules of the package ---------------------------------------------------------------
+REL = "import math\n\n\ndef versine(x):\n    return 1.0 - math.cos(x)\n"
+STABLE = "import math\n\n\ndef versine(x):\n    return 2.0 * math.sin(x / 2.0) ** 2\n"
+USE = ("from .rel import versine as vs\nfrom phys.rel import versine\n\n\n"
+       "def half(t):  # condhint: 1e-7 <= t <= 1e-5\n    return vs(t) / 2.0\n\n\n"
+       "def other(t):  # condhint: 1e-7 <= t <= 1e-5\n    return versine(t) * 3.0\n")
+
+
+def package(tmp_path, rel: str = REL):
+    pkg = tmp_path / "phys"
+    pkg.mkdir(exist_ok=True)
+    (pkg / "__init__.py").write_text("")
+    (pkg / "rel.py").write_text(rel)
+    (pkg / "use.py").write_text(USE)
+    return pkg / "use.py"
+
+
+def test_functions_of_the_package_are_read_from_disk_and_inlined(tmp_path):
+    use = package(tmp_path)
+    ma = analyse_module(USE, str(use), Config(kappa_formula=False), cache=None)
+    found = sorted((f.span.line, f.scope) for f in ma.findings)
+    assert found == [(6, "half"), (10, "other")]  # relative and absolute imports, shown at the call
+    f = next(f for f in ma.findings if f.scope == "half")
+    assert f.message.startswith("In `rel.versine` (called at line 6)") and f.expression == "1.0 - math.cos(x)"
+    # 1 − cos t for t ≈ 1e-7 cancels ≈ log10(2/t²) ≈ 14.3 digits (DLMF ch. 4); far more than 9 are lost
+    assert f.digits_lost > 9
+    # without a package (no __init__.py) the absolute import is not the project's: only the relative one is read
+    (tmp_path / "phys" / "__init__.py").unlink()
+    ma = analyse_module(USE, str(use), Config(kappa_formula=False), cache=None)
+    assert sorted(f.scope for f in ma.findings) == ["half"]
+
+
+def test_caches_follow_the_imported_file(tmp_path):
+    use = package(tmp_path)
+    cfg = Config(kappa_formula=False)
+    units = UnitCache()
+    first = analyse_module(USE, str(use), cfg, AnalysisCache(), units=units)
+    stamp = dependency_stamp(USE, str(use))
+    assert len(first.findings) == 2 and stamp
+    (tmp_path / "phys" / "rel.py").write_text(STABLE)  # the callee made stable on disk; the caller unchanged
+    assert dependency_stamp(USE, str(use)) != stamp  # part of the unit keys and of the disk cache's key
+    second = analyse_module(USE, str(use), cfg, AnalysisCache(), units=units)
+    assert second.findings == [] and second.reused == 0
+
+
+def test_the_disk_cache_misses_when_an_imported_file_changes(tmp_path):
+    from types import SimpleNamespace
+
+    from condhint.diskcache import DiskCache
+    from condhint.findings import FileReport
+
+    use = package(tmp_path)
+    cache = DiskCache(tmp_path / "cache")
+    runs: list[str] = []
+
+    def check(target, cfg, fixes):
+        runs.append(target.shown)
+        return FileReport(target.shown, "ok")
+
+    target = SimpleNamespace(path=use, shown="phys/use.py")
+    for _ in range(2):
+        cache.check_target(target, Config(), False, check)
+    assert len(runs) == 1  # the second run is a hit
+    (tmp_path / "phys" / "rel.py").write_text(STABLE)
+    cache.check_target(target, Config(), False, check)
+    assert len(runs) == 2  # the caller's bytes are unchanged, but a file it inlines from is not

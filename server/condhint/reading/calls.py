@@ -24,8 +24,8 @@ def convert_call(conv: "Converter", e: ast.Call) -> Node | None:
         span = source.span(e)
         return Node(CONST, value=float(exact), exact=exact, span=span, text=source.segment(span))
     fid = names.function(e.func)
-    if fid is None and isinstance(e.func, ast.Name) and e.func.id in conv.w.index.definitions:
-        inlined = inline_call(conv, e)  # one of the module's own functions (`inline.py`)
+    if fid is None and isinstance(e.func, ast.Name) and (e.func.id in conv.w.index.definitions or conv.w.index.path):
+        inlined = inline_call(conv, e)  # one of the project's own functions (`inline.py`)
         if inlined is not None:
             return inlined
     if isinstance(e.func, ast.Name) and e.func.id in INT_BUILTINS and e.func.id not in conv.env:

@@ -1,12 +1,14 @@
-"""Calls into the module's own functions, inlined at the call site (read from the text, never imported or run).
+"""Calls into the project's own functions, inlined at the call site (read from the text, never imported or run).
 
-Inlined: a top-level `def` of the same module, without decorators, `*args`/`**kwargs`, or a body other than
-straight-line assignments to names followed by one `return` of an expression, whose expressions use only its
+Inlined: a top-level `def` of the same module, or of another module of the package reached through
+`from … import name` (read from disk by `imported.py`), without decorators, `*args`/`**kwargs`, or a body other
+than straight-line assignments to names followed by one `return` of an expression, whose expressions use only its
 parameters, its own locals, module constants, known math/numpy functions and other such functions (depth ≤
 `MAX_DEPTH`, a function never inside itself). Its parameters are bound to the caller's argument nodes, so the
 caller's ranges reach the callee; the callee's own `# condhint:` ranges on its parameters still hold (as
-constraints on the caller's inputs, or filters on the argument values). Methods, closures, functions with
-branches, loops or side effects, and functions of other modules are not inlined: their calls stay opaque.
+constraints on the caller's inputs, or filters on the argument values). The operations of another file's function
+are shown at the call. Methods, closures, and functions with branches, loops or side effects are not inlined:
+their calls stay opaque inputs.
 """
 from __future__ import annotations
 
@@ -14,7 +16,8 @@ import ast
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
-from condhint.expr import COMPARE, CONST, INPUT, Node, topological
+from condhint.expr import COMPARE, CONST, INPUT, Node, Span, topological
+from condhint.reading.imported import imported_functions
 from condhint.reading.ranges import Constraint, declared_ranges
 from condhint.site import Filter
 
@@ -91,12 +94,21 @@ def _pure(w: "Walker", e: ast.expr, known: set[str]) -> bool:
 
 
 def inline_call(conv: "Converter", e: ast.Call) -> Node | None:
-    """The value of a call to one of the module's own functions, its body inlined; None when not inlinable."""
+    """The value of a call to one of the project's own functions (this module's, or another module's of the
+    package through `from … import`), its body inlined; None when it is not inlinable."""
     w = conv.w
-    if not isinstance(e.func, ast.Name) or e.func.id in conv.env or len(w.calling) >= MAX_DEPTH or \
-            e.func.id in w.calling:
+    if not isinstance(e.func, ast.Name) or e.func.id in conv.env or len(w.calling) >= MAX_DEPTH:
         return None
-    fn = inlinable(w, e.func.id)
+    callee, name, label = w, e.func.id, e.func.id
+    if name not in w.index.definitions:
+        target = imported_functions(w.index).get(name) if w.index.path else None
+        other = w.index.read_other(target[0]) if target is not None else None
+        if target is None or other is None:
+            return None
+        callee, name, label = w.foreign(other), target[1], f"{target[0].stem}.{target[1]}"
+    if any(c.function == label for c in w.calling):
+        return None
+    fn = inlinable(callee, name)
     if fn is None or any(isinstance(x, ast.Starred) for x in e.args):
         return None
     params = [x.arg for x in fn.args.args]
@@ -107,21 +119,30 @@ def inline_call(conv: "Converter", e: ast.Call) -> Node | None:
     defaults = dict(zip(params[len(params) - len(fn.args.defaults):], fn.args.defaults))
     env: dict[str, Node | None] = {}
     for p in params:
-        src = given.get(p, defaults.get(p))
-        node = conv.convert(src) if src is not None else None
+        arg = given.get(p)
+        node = conv.convert(arg) if arg is not None else _default(callee, conv, defaults.get(p))
         if node is None:
             return None
         env[p] = node
-    return _body(conv, fn, e, env)
+    return _body(conv, callee, fn, e, env, label)
 
 
-def _body(conv: "Converter", fn: ast.FunctionDef, call: ast.Call, env: dict[str, Node | None]) -> Node | None:
+def _default(callee: "Walker", conv: "Converter", value: ast.expr | None) -> Node | None:
+    """A parameter's literal default, read in the callee's module."""
+    if value is None:
+        return None
+    return type(conv)(callee, {}, conv.ctx.copy(), conv.scope, conv.stmt).convert(value)
+
+
+def _body(conv: "Converter", callee: "Walker", fn: ast.FunctionDef, call: ast.Call, env: dict[str, Node | None],
+          label: str) -> Node | None:
     w = conv.w
-    declared = declared_ranges([c for ln, c in w.index.comment_at.items() if fn.lineno <= ln <= (fn.end_lineno or 0)])
+    comments = callee.index.comment_at
+    declared = declared_ranges([c for ln, c in comments.items() if fn.lineno <= ln <= (fn.end_lineno or 0)])
     args = {id(n) for n in env.values() if n is not None}
-    w.calling.append(Call(fn.name, call.lineno, fn.lineno))
+    w.calling.append(Call(label, call.lineno, fn.lineno))
     try:
-        inner = type(conv)(w, env, conv.ctx.copy(), conv.scope, conv.stmt)  # a Converter for the callee's body
+        inner = type(conv)(callee, env, conv.ctx.copy(), conv.scope, conv.stmt)  # a Converter for the body
         for st in fn.body[:-1]:
             if isinstance(st, ast.Assign):
                 env[st.targets[0].id] = inner.convert(st.value)  # type: ignore[union-attr]
@@ -129,16 +150,30 @@ def _body(conv: "Converter", fn: ast.FunctionDef, call: ast.Call, env: dict[str,
     finally:
         chain = tuple(w.calling)
         w.calling.pop()
-    if root is None:
+    if root is None or len(topological(root)) > MAX_NODES:
         return None
-    nodes = topological(root)
-    if len(nodes) > MAX_NODES:
-        return None
-    for n in nodes:
+    reach = {id(x) for a in env.values() if a is not None and id(a) in args for x in topological(a)}
+    if any(n.kind == INPUT and id(n) not in reach for n in topological(root)):
+        return None  # a call inside it could not be inlined (recursion, depth): the whole call stays opaque
+    if callee is not w:  # another file: its operations are shown at the call, in this file
+        root = _at_call(root, args, w.source.span(call))
+    for n in topological(root):
         if id(n) not in args and n.kind not in (INPUT, CONST):
             w.inlined.setdefault(id(n), chain)
     _callee_ranges(conv, declared, env, fn)
     return root
+
+
+def _at_call(root: Node, keep: set[int], span: Span) -> Node:
+    """A copy of the DAG whose nodes (other than the caller's arguments, kept as they are) sit at `span`."""
+    new: dict[int, Node] = {}
+    for n in topological(root):
+        if id(n) in keep:
+            new[id(n)] = n
+            continue
+        new[id(n)] = Node(n.kind, tuple(new[id(a)] for a in n.args), name=n.name, value=n.value, exact=n.exact,
+                          span=span, is_int=n.is_int, text=n.text, format=n.format)
+    return new[id(root)]
 
 
 def _callee_ranges(conv: "Converter", declared: dict, env: dict[str, Node | None], fn: ast.FunctionDef) -> None:

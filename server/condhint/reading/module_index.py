@@ -14,9 +14,11 @@ import re
 import warnings
 from dataclasses import dataclass, field
 from functools import cached_property
+from pathlib import Path
 
 from condhint.expr import Node, Span
 from condhint.reading.comments import Clauses, find_comments
+from condhint.reading.imported import load
 from condhint.reading.names import Names
 from condhint.reading.source import Source
 from condhint.reading.targets import DEFS
@@ -63,6 +65,8 @@ class ModuleIndex:
     constants: dict[str, Node] = field(default_factory=dict)  # names bound once at module level to constants
     units: list[Unit] = field(default_factory=list)  # the module-level code first, then definitions in order
     problem: SyntaxProblem | None = None  # tolerant reading: why the original text does not parse
+    path: str = ""  # the file the text was read from ("" when unknown): imports of the package resolve from it
+    imports: dict | None = None  # `reading.imported.imported_functions`, computed once when first needed
     _calls: dict[Unit, frozenset[str]] = field(default_factory=dict, repr=False)
 
     @cached_property
@@ -72,6 +76,10 @@ class ModuleIndex:
     @cached_property
     def comment_at(self) -> dict[int, Clauses]:
         return {c.line: c for c in self.comments}
+
+    def read_other(self, path: Path) -> "ModuleIndex | None":
+        """The index of another file of the package (`reading.imported`), read from disk, never run."""
+        return load(path, lambda text: read_module(text)[0])
 
     def unit_at(self, line: int) -> Unit:
         """The definition holding a line, else the module-level code."""

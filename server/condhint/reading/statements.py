@@ -50,6 +50,15 @@ class Walker:
         self.inlinable: dict[str, ast.FunctionDef | None] = {}
         self.calling: list[Call] = []
         self.inlined: dict[int, tuple[Call, ...]] = {}
+        self._foreign: dict[str, Walker] = {}
+
+    def foreign(self, index: "ModuleIndex") -> "Walker":
+        """A walker over another module of the package, sharing this one's chain of calls being inlined."""
+        w = self._foreign.get(index.path)
+        if w is None or w.index is not index:
+            w = self._foreign[index.path] = Walker(index, self.max_nodes)
+            w.calling = self.calling
+        return w
 
     # ---- units and scopes -------------------------------------------------------------------------------
     def walk(self, unit: "Unit") -> list[Site]:
