@@ -247,13 +247,7 @@ def test_checkpoints_cover_every_early_step_and_end_at_the_last():
     assert marks[:64] == list(range(1, 65)) and marks[-1] == 1000 and 512 in marks
 
 
-FSUM = """
-def total(xs):  # condhint: len(xs) in [10, 1e5], -1 <= xs <= 1
-    s = 0.0
-    for x in xs:
-        s += x
-    return s
-"""
+FSUM = SUM.replace("len(xs) in [10, 800]", "len(xs) in [10, 1e5]")  # long enough to lose ≥ 2 digits
 
 
 def test_fsum_fix_replaces_a_running_sum_and_is_verified():

@@ -30,13 +30,17 @@ CLOCK = """def simulate(dt):  # condhint: 0.01 <= dt <= 0.01
 """
 
 
-async def test_editing_a_callee_reanalyses_the_caller(lsp, tmp_path):
+async def opened(lsp, path, text):
+    """A server with `text` open at `path`, its URI and its first diagnostics."""
     client = await lsp(VSCODE, init_options={"debounceMs": 10})
-    path = tmp_path / "angles.py"
     uri = path.resolve().as_uri()
     first = expect_diagnostics(client, uri, version=1)
-    open_document(client, path, CALLS)
-    diags = list((await within(first)).diagnostics)
+    open_document(client, path, text)
+    return client, uri, list((await within(first)).diagnostics)
+
+
+async def test_editing_a_callee_reanalyses_the_caller(lsp, tmp_path):
+    client, uri, diags = await opened(lsp, tmp_path / "angles.py", CALLS)
     flagged = [d for d in diags if d.code == "CH101" and d.message.find("`versine` (called at line 9)") >= 0]
     assert [d.range.start.line for d in flagged] == [4]  # 0-based: the subtraction inside `versine`
     second = expect_diagnostics(client, uri, version=2)
@@ -48,10 +52,5 @@ async def test_editing_a_callee_reanalyses_the_caller(lsp, tmp_path):
 
 
 async def test_a_clock_that_drifts_is_published(lsp, tmp_path):
-    client = await lsp(VSCODE, init_options={"debounceMs": 10})
-    path = tmp_path / "clock.py"
-    uri = path.resolve().as_uri()
-    first = expect_diagnostics(client, uri, version=1)
-    open_document(client, path, CLOCK)
-    (d,) = list((await within(first)).diagnostics)
+    _, _, (d,) = await opened(lsp, tmp_path / "clock.py", CLOCK)
     assert d.code == "CH101" and d.range.start.line == 3 and "accumulates rounding error" in d.message
