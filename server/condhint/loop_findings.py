@@ -17,11 +17,15 @@ from condhint.kinds import BY_CODE
 from condhint.loop_messages import LoopFacts, accumulation_message, recurrence_message, series_message
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
 from condhint.numeric.loops import LoopAnalysis, analyse_loop, fsum_digits
+from condhint.numeric.sampling import resolve
 from condhint.recurrence import Carried, Recurrence
 from condhint.site_findings import not_analysed
 
 LOOP = "#loop"  # a loop finding's origin is "<unit key>#loop<number>"
 _NONE: Any = object()  # cached "nothing to report"
+# On guessed (default) ranges a loop's loss must show on at least this share of the few samples a loop is
+# iterated over: a loss only toward the ends of a guess says more about the guess than about the code.
+GUESSED_SHARE = 0.5
 
 
 def loop_number(origin: str) -> int | None:
@@ -65,13 +69,13 @@ def loop_findings(recs: list[Recurrence], cfg: Config, path: str, key: str, cach
 def _finding(rec: Recurrence, a: LoopAnalysis, cfg: Config, path: str, origin: str) -> Finding | None:
     kind = BY_CODE["CH102" if a.kind == "unstable" else "CH101"]
     severity = kind.severity(a, cfg)
-    if severity is None:
+    if severity is None or (not a.declared and a.fraction < GUESSED_SHARE):
         return None
     carried = next(c for c in rec.carried if c.name == a.name)
     facts = LoopFacts(rec, a, carried, cfg)
     build = recurrence_message if a.kind == "unstable" else series_message if a.kind == "series" else \
         accumulation_message
-    inputs = {k: InputInfo(r.interval.low, r.interval.high, r.source, r.uncertainty)
+    inputs = {k: InputInfo(*resolve(r.interval, cfg.default_range), r.source, r.uncertainty)
               for k, r in rec.ranges.items() if k in set(rec.outer_inputs()) | set(rec.elements)}
     related = [(rec.span.line, f"the loop runs up to {rec.trips} times ({rec.trips_source})")]
     return Finding(path=path, span=carried.statement, code=kind.code, severity=severity, message=build(facts),

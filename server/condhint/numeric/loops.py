@@ -226,7 +226,8 @@ def _summarise(rec: Recurrence, cfg: Config, floats: list[Any], marks: list[int]
             measured = float(digits[w])
             a = LoopAnalysis(c.name, rec.trips, steps_done[-1], measured, measured, "accumulation",
                              worst_at={k: float(v[w]) for k, v in cols.items()},
-                             declared=all(r.source != "default" for r in ranges.values()))
+                             declared=all(r.source != "default" for r in ranges.values()) and all(
+                                 rec.ranges[e].source != "default" for e in rec.elements if e in rec.ranges))
             curve = norm[c.name][:rows, w]
             a.factor = _geometric(steps_done, curve, u)
             lost = np.flatnonzero(np.nan_to_num(err[c.name][:rows, w], nan=0.0) >= 1.0)

@@ -220,7 +220,14 @@ def _range_bounds(conv: Converter, call: ast.Call, ctx: Context) -> tuple[int, i
 
 
 def _bound_value(conv: Converter, e: ast.expr, ctx: Context, high: bool | None) -> float | None:
-    """A bound's value: a constant, else the high (or low) end of the name's finite range; None if unknown."""
+    """A bound's value: a constant, else the high (or low) end of the name's finite range; None if unknown.
+    Only literals, names, arithmetic and `len(name)` are read (nothing that would make sites of its own)."""
+    for sub in ast.walk(e):
+        if isinstance(sub, ast.Call) and not (isinstance(sub.func, ast.Name) and sub.func.id == "len"
+                                              and len(sub.args) == 1 and isinstance(sub.args[0], ast.Name)):
+            return None
+        if isinstance(sub, (ast.Subscript, ast.Attribute, ast.Lambda, ast.NamedExpr, ast.IfExp)):
+            return None
     node = conv.convert(e)
     if node is None:
         return None
