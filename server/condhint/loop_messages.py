@@ -4,6 +4,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from condhint.config import Config
+from condhint.expr import INPUT, topological
 from condhint.messages import code, digits, num, pct, where
 from condhint.numeric.formats import BINARY64
 from condhint.numeric.loops import LoopAnalysis
@@ -25,7 +26,7 @@ class LoopFacts:
 def _how_measured(m: LoopFacts) -> str:
     a = m.analysis
     if a.all_lost_at is not None:
-        return f"every digit is gone by step {a.all_lost_at}"
+        return f"less than one correct digit is left by step {a.all_lost_at}"
     if not a.extrapolated:
         return f"measured against mpmath over all {a.steps} steps"
     law = (f"error ∝ k^{a.exponent:.2g}" if a.exponent is not None else
@@ -45,14 +46,21 @@ def accumulation_message(m: LoopFacts) -> str:
     """CH101 on a loop: rounding added up step after step (a running sum, a clock, a running product)."""
     op = m.carried.update.kind
     if op in _SUMS:
-        remedy = ("Counting instead of accumulating (`t = t0 + i * dt`), `math.fsum` of the terms, or compensated "
-                  "(Kahan) summation where the loop must stay avoids the drift")
+        counting = "Counting instead of accumulating (`t = t0 + i * dt`), " if _fixed_step(m) else ""
+        remedy = (f"{counting}`math.fsum` of the terms, or compensated (Kahan) summation where the loop must stay, "
+                  "avoids the drift")
     elif op in ("mul", "div"):
         remedy = ("Computing the product directly (a power, or `math.exp` of a `math.fsum` of logarithms) avoids "
                   "compounding a rounding at every step")
     else:
         remedy = "Computing the value directly instead of step by step avoids adding a rounding at every step"
     return f"{code(m.carried.text)} accumulates rounding error: {_lead(m)}. {remedy}."
+
+
+def _fixed_step(m: LoopFacts) -> bool:
+    """Whether the carried name grows by the same increment at every step (a clock)."""
+    up, moving = m.carried.update, {*m.loop.state_names, m.loop.counter, *m.loop.elements}
+    return len(up.args) == 2 and not any(n.kind == INPUT and n.name in moving for n in topological(up.args[1]))
 
 
 def series_message(m: LoopFacts) -> str:
@@ -71,5 +79,6 @@ def recurrence_message(m: LoopFacts) -> str:
     grow = f"by about ×{num(a.factor)} per step" if a.factor is not None else "at every step"
     return (f"{code(m.carried.text)} is an unstable recurrence: each step multiplies the error already carried in "
             f"{code(m.carried.name)} {grow}, so the rounding of its starting value and of every step grows without "
-            f"bound; {_lead(m)}. Running the recurrence the other way (backwards, from a large index down, which "
-            "damps the errors this direction amplifies) or a closed form avoids it; no automatic fix is offered.")
+            f"bound; {_lead(m)}. A closed form, or running the recurrence the other way (backwards, from a large "
+            "index down, which damps the errors this direction amplifies), avoids it where the problem allows; a "
+            "chaotic map has neither, and only higher precision delays the loss. No automatic fix is offered.")

@@ -115,7 +115,7 @@ def test_forwards_recurrence_for_the_moments_is_unstable():
 
 def test_every_digit_is_lost_by_the_step_where_n_factorial_exceeds_one_over_u():
     # The error u·|I(0)| grows like n! (Forsythe, Malcolm & Moler 1977): n! ≈ 1/u between n = 18 (6.4e15)
-    # and n = 19 (1.2e17), so every digit is gone at about n = 18-19.
+    # and n = 19 (1.2e17), so less than one correct digit is left by about n = 17-19.
     src = FORSYTHE.replace("range(1, 16)", "range(1, 40)")
     (rec,) = recurrences(src)
     a = analyse_loop(rec, Config())
@@ -279,3 +279,23 @@ def test_no_fsum_fix_when_the_loop_variable_is_used_after_the_loop():
     attach_fixes(ma, Config())
     (f,) = ma.findings
     assert f.code == "CH101" and [x.rule for x in f.fixes if x.rule == "loop-fsum"] == []
+
+
+LOGISTIC = """
+def logistic(r, x):  # condhint: r in [R, R], 0.1 <= x <= 0.3
+    for _ in range(100):
+        x = r * x * (1.0 - x)
+    return x
+"""
+
+
+def test_the_chaotic_logistic_map_is_unstable_and_the_contracting_one_is_not():
+    # x ← 4x(1 − x) is conjugate to the tent map: its Lyapunov exponent is ln 2, errors double per step on
+    # average (a standard result of dynamical systems, from memory); at r = 2.5 it contracts to x = 0.6.
+    (rec,) = recurrences(LOGISTIC.replace("R", "4.0"))
+    a = analyse_loop(rec, Config())
+    assert a is not None and a.kind == "unstable" and 1.5 <= a.factor <= 3.0
+    assert a.all_lost_at is not None and a.all_lost_at <= 64  # 2^k u ≥ 0.1 by k ≈ 50
+    (f,) = findings(LOGISTIC.replace("R", "4.0"))
+    assert f.code == "CH102" and "chaotic map" in f.message
+    assert codes(LOGISTIC.replace("R", "2.5")) == []

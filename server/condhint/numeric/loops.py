@@ -30,6 +30,7 @@ CAP = 1000  # steps evaluated
 SAMPLES = 8  # samples of the inputs (plus the corners of their ranges)
 DPS = 50  # mpmath digits; raised when the reference itself cancels more than DPS - 20 digits
 _MP_RAW = MP()  # the mpmath backend, taking inputs already converted (carried values keep their precision)
+_NO_DIGIT = 0.1  # a relative error from which less than one correct digit is left
 _GRID = 256  # points of the grid per-step elements are drawn through
 _STEEP = 8.0  # error growing more than this from step k to 2k (k ≥ 4) grows faster than any low power: unstable
 
@@ -46,7 +47,7 @@ class LoopAnalysis:
     kind: str  # "unstable" (error grows geometrically), "series" (partial values cancel), "accumulation"
     exponent: float | None = None  # fitted growth k^p of the error (accumulation, series)
     factor: float | None = None  # error growth per step (unstable)
-    all_lost_at: int | None = None  # the step by which every digit is lost at the worst sample
+    all_lost_at: int | None = None  # the step from which less than one correct digit is left (worst sample)
     cancellation: float = 1.0  # largest |partial value| / |final value| at the worst sample
     worst_at: dict[str, float] = field(default_factory=dict)
     fraction: float = 0.0  # share of samples losing ≥ the info threshold
@@ -230,7 +231,7 @@ def _summarise(rec: Recurrence, cfg: Config, floats: list[Any], marks: list[int]
                                  rec.ranges[e].source != "default" for e in rec.elements if e in rec.ranges))
             curve = norm[c.name][:rows, w]
             a.factor = _geometric(steps_done, curve, u)
-            lost = np.flatnonzero(np.nan_to_num(err[c.name][:rows, w], nan=0.0) >= 1.0)
+            lost = np.flatnonzero(np.nan_to_num(err[c.name][:rows, w], nan=0.0) >= _NO_DIGIT)
             a.all_lost_at = steps_done[int(lost[0])] if len(lost) else None
             if a.all_lost_at is not None:
                 a.digits = a.measured_digits = total
