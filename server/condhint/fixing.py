@@ -36,6 +36,10 @@ def fixes_for(finding: Finding, ma: ModuleAnalysis, cfg: Config, cache: Analysis
     unit = next((u for u in ma.units if u.key == finding.origin.rpartition("#")[0]), None)
     if package is None or site is None or unit is None or ma.index is None:
         return []
+    if site.inlined:
+        # Operations inlined from a callee (issue 15): a rewrite would either edit a function other callers
+        # share, judged on this caller's ranges only, or spell the callee's names in the caller. None is offered.
+        return []
     quiet = replace(cfg, kappa_formula=False)
     units = UnitCache(64)
 

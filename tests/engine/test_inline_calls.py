@@ -174,3 +174,19 @@ def test_the_disk_cache_misses_when_an_imported_file_changes(tmp_path):
     (tmp_path / "phys" / "rel.py").write_text(STABLE)
     cache.check_target(target, Config(), False, check)
     assert len(runs) == 2  # the caller's bytes are unchanged, but a file it inlines from is not
+
+
+def test_no_rewrite_is_offered_through_an_inlined_call():
+    # The same cancellation written in place gets its verified rewrite (expm1, Goldberg 1991); behind a call
+    # it does not: the rewrite would edit a function other callers share, judged on this caller's ranges only.
+    from condhint.fixing import attach_fixes
+
+    direct = "import math\ndef f(t):  # condhint: 1e-9 <= t <= 1e-6\n    return math.exp(t) - 1.0\n"
+    behind = ("import math\ndef g(x):\n    return math.exp(x) - 1.0\n\n"
+              "def f(t):  # condhint: 1e-9 <= t <= 1e-6\n    return g(t) * 2.0\n")
+    cfg = Config(kappa_formula=False)
+    for src, fixed in ((direct, True), (behind, False)):
+        ma = analyse_module(src, "t.py", cfg, cache=None)
+        attach_fixes(ma, cfg)
+        mine = [f for f in ma.findings if f.scope == "f"]
+        assert mine and bool(mine[0].fixes) == fixed
