@@ -11,7 +11,7 @@ from dataclasses import replace
 from typing import Any
 
 from condhint.config import Config
-from condhint.expr import CONST, INPUT, Node, topological
+from condhint.expr import CONST, INPUT, Node, Span, topological
 from condhint.findings import Finding, Fix, InputInfo
 from condhint.kinds import BY_CODE
 from condhint.loop_messages import LoopFacts, accumulation_message, recurrence_message, series_message
@@ -94,7 +94,9 @@ def loop_fixes(rec: Recurrence, finding: Finding, cfg: Config, cache: Any = None
         before = measure(rec, cfg, cache)
         if before is None or before.name != carried.name:
             return []
-        return [f for f in (_counting(rec, carried, before, cfg, cache), _fsum(rec, carried, before, cfg)) if f]
+        found = (_fsum(rec, carried, before, cfg), _counting(rec, carried, before, cfg, cache),
+                 _kahan(rec, carried, before, cfg, cache))
+        return [f for f in found if f]
     except (BudgetExceeded, MemoryError, OverflowError, ValueError, ZeroDivisionError):
         return []
 
@@ -140,6 +142,53 @@ def _counting(rec: Recurrence, carried: Carried, before: LoopAnalysis, cfg: Conf
                replacement=f"{carried.name} = {expr}", span=carried.statement,
                measured_digits_lost_after=after.digits, measured_digits_lost_before=before.digits,
                rule="loop-counting")
+
+
+def _kahan(rec: Recurrence, carried: Carried, before: LoopAnalysis, cfg: Config, cache: Any) -> Fix | None:
+    """`s += term` inside a loop that must stay becomes compensated summation (Kahan 1965; Higham 2002, chapter
+    on summation): in exact arithmetic the compensation stays 0 and `s` takes the same values, so only rounding
+    changes. The loop is rewritten whole (the compensation starts at 0 before it); new names must be fresh."""
+    up, s = carried.update, carried.name
+    if up.kind != "add" or up.args[0].kind != INPUT or up.args[0].name != s or not rec.lines:
+        return None
+    term = up.args[1]
+    if any(n.kind == INPUT and n.name == s for n in topological(term)) or not term.text:
+        return None
+    c, y, t = (f"{s}_{suffix}" for suffix in ("comp", "y", "t"))
+    if {c, y, t} & rec.names:
+        return None
+    text = _kahan_text(rec, carried.statement, term.text if term.is_leaf else f"({term.text})", s, c, y, t)
+    if text is None:
+        return None
+    zero = Node(CONST, value=0.0, exact="0", text="0.0")
+    comp = Node(INPUT, name=c, text=c)
+    yv = Node("sub", (term, comp))
+    tv = Node("add", (up.args[0], yv))
+    compensated = replace(rec, carried=tuple(replace(x, update=tv) if x.name == s else x for x in rec.carried) + (
+        Carried(c, zero, Node("sub", (Node("sub", (tv, up.args[0])), yv)), carried.statement, ""),))
+    after = measure(compensated, cfg, cache, only=s)
+    if after is None or after.digits > before.digits - 1.0:
+        return None
+    return Fix(title=f"Compensated (Kahan) summation of {s}", replacement=text, span=rec.span,
+               measured_digits_lost_after=after.digits, measured_digits_lost_before=before.digits,
+               rule="loop-kahan")
+
+
+def _kahan_text(rec: Recurrence, stmt: Span, term: str, s: str, c: str, y: str, t: str) -> str | None:
+    """The loop's text with the statement replaced by the compensated update, preceded by `c = 0.0`; None when
+    the statement does not stand alone on its lines."""
+    loop = rec.span
+    indent, lead = rec.lines[0][:loop.col], rec.lines[stmt.line - loop.line][:stmt.col]
+    tail = rec.lines[stmt.end_line - loop.line][stmt.end_col:]
+    if indent.strip() or lead.strip() or tail.strip():
+        return None
+    body = [f"{y} = {term} - {c}", f"{t} = {s} + {y}", f"{c} = ({t} - {s}) - {y}", f"{s} = {t}"]
+    lines = list(rec.lines)
+    lines[stmt.line - loop.line:stmt.end_line - loop.line + 1] = [lead + b for b in body]
+    text = "\n".join(lines)
+    # the replaced range ends where the loop does: keep what follows it on its last line out of the text
+    end = len(text) if stmt.end_line == loop.end_line else len(text) - (len(rec.lines[-1]) - loop.end_col)
+    return f"{c} = 0.0\n{indent}" + text[loop.col:end]
 
 
 def _counted(rec: Recurrence, name: str, done: int, inc: Node, initial: Node) -> Recurrence:

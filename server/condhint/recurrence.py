@@ -40,6 +40,8 @@ class Recurrence:
     ranges: dict[str, InputRange] = field(default_factory=dict)  # of the names fixed during the loop and elements
     iterated: str | None = None  # `for x in xs`: xs
     replaceable: bool = False  # the body is one statement and the loop's target is not used outside the loop
+    lines: tuple[str, ...] = ()  # the source lines the loop spans (whole lines), for fixes that rewrite it
+    names: frozenset[str] = frozenset()  # every name of the loop's unit (new names of a fix must be fresh)
 
     @property
     def state_names(self) -> tuple[str, ...]:

@@ -189,7 +189,8 @@ def test_counting_fix_for_a_clock_is_verified_and_keeps_the_values():
     ma = analyse_module(src, "t.py", Config())
     attach_fixes(ma, Config())
     (f,) = ma.findings
-    (fix,) = f.fixes
+    assert [x.rule for x in f.fixes] == ["loop-counting", "loop-kahan"]  # the loop may also stay, compensated
+    fix = f.fixes[0]
     assert fix.replacement == "t = (i + 1) * dt" and fix.span == f.span
     assert fix.measured_digits_lost_after <= f.digits_lost - 1
     # the counted clock equals the accumulated one up to rounding at every step (checked with exact Fractions)
@@ -206,8 +207,8 @@ def test_counting_fix_for_a_clock_is_verified_and_keeps_the_values():
 def test_no_counting_fix_where_the_counted_form_is_not_the_same(src):
     ma = analyse_module(textwrap.dedent(src), "t.py", Config())
     attach_fixes(ma, Config())
-    assert [f.code for f in ma.findings] == ["CH101"]  # the drift is still reported, without a fix
-    assert all(not f.fixes for f in ma.findings)
+    assert [f.code for f in ma.findings] == ["CH101"]  # the drift is still reported, without counting
+    assert all(x.rule != "loop-counting" for f in ma.findings for x in f.fixes)
 
 
 # ---- must not fire ----------------------------------------------------------------------------------------
@@ -299,3 +300,47 @@ def test_the_chaotic_logistic_map_is_unstable_and_the_contracting_one_is_not():
     (f,) = findings(LOGISTIC.replace("R", "4.0"))
     assert f.code == "CH102" and "chaotic map" in f.message
     assert codes(LOGISTIC.replace("R", "2.5")) == []
+
+
+RUNNING = """
+def running(xs):  # condhint: len(xs) in [10, 1e5], -1 <= xs <= 1
+    s = 0.0
+    out = []
+    for x in xs:
+        s += x
+        out.append(s)
+    return out
+"""
+
+
+def test_kahan_fix_where_the_loop_must_stay():
+    src = textwrap.dedent(RUNNING)
+    ma = analyse_module(src, "t.py", Config())
+    attach_fixes(ma, Config())
+    (f,) = ma.findings
+    (fix,) = f.fixes  # no fsum (the loop also fills `out`), no counting (the step is not fixed)
+    assert fix.rule == "loop-kahan" and (fix.span.line, fix.span.end_line) == (5, 7)
+    fixed = apply_fixes(src, [fix])
+    assert fixed == src.replace("    for x in xs:\n        s += x\n", "    s_comp = 0.0\n    for x in xs:\n"
+                                "        s_y = x - s_comp\n        s_t = s + s_y\n        s_comp = (s_t - s) - s_y\n"
+                                "        s = s_t\n")
+    # Compensated summation (Kahan 1965; Higham 2002, chapter on summation), run here in Python on the loop's
+    # own samples against exact rational sums: it loses no more than the fix's measured figure says.
+    (rec,) = recurrences(RUNNING)
+    elems = element_samples(rec, CAP, 8, _seed(rec), Config().default_range)["x"]
+    worst = 0.0
+    for j in range(elems.shape[1]):
+        s = comp = 0.0
+        for v in elems[:, j]:
+            y = float(v) - comp
+            t = s + y
+            comp = (t - s) - y
+            s = t
+        exact = sum((Fraction(float(v)) for v in elems[:, j]), Fraction(0))
+        worst = max(worst, digits(float(abs(Fraction(s) - exact) / abs(exact))))
+    assert worst <= fix.measured_digits_lost_after + 0.05 and fix.measured_digits_lost_after <= f.digits_lost - 1
+    # a statement sharing its line with a comment is left alone (the rewrite would drop the comment)
+    commented = textwrap.dedent(RUNNING.replace("s += x\n", "s += x  # total\n"))
+    ma = analyse_module(commented, "t.py", Config())
+    attach_fixes(ma, Config())
+    assert [x.rule for x in ma.findings[0].fixes] == []

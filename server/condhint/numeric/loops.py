@@ -142,7 +142,8 @@ def analyse_loop(rec: Recurrence, cfg: Config, deadline: Deadline | None = None,
             done = {k for k, _ in run64}
             runmp = iterate(rec, outer, elements, max(done), _MP_RAW, n, sorted(done), deadline)
             err, norm, peak = _errors(run64, runmp, floats, n)
-        need = max((float(np.nanmax(np.log10(np.maximum(p, 1e-300)))) for p in peak.values()), default=0.0)
+        need = max((float(np.max(np.log10(np.maximum(np.nan_to_num(p, nan=1.0), 1e-300)))) for p in peak.values()),
+                   default=0.0)
         if need <= dps - 20 or dps >= 400:
             break
         dps = min(400, int(need) + 40)

@@ -92,9 +92,18 @@ def read_recurrence(w: "Walker", scope: str, stmt: ast.For, env: dict[str, Node 
     for name, array in elements.items():
         ranges[name] = _element_range(array, ctx)
     iterated = stmt.iter.id if isinstance(stmt.iter, ast.Name) else None
-    return Recurrence(tuple(carried), trips, how, w.source.span(stmt), scope, counter, start, stride,
+    span = w.source.span(stmt)
+    return Recurrence(tuple(carried), trips, how, span, scope, counter, start, stride,
                       tuple(sorted(elements)), ranges, iterated,
-                      replaceable=len(stmt.body) == 1 and not _used_outside(w, stmt, target))
+                      replaceable=len(stmt.body) == 1 and not _used_outside(w, stmt, target),
+                      lines=tuple(w.source.lines[span.line - 1:span.end_line]), names=_names_of_unit(w, stmt))
+
+
+def _names_of_unit(w: "Walker", loop: ast.For) -> frozenset[str]:
+    unit = w.index.unit_at(loop.lineno)
+    tree: ast.AST = unit.stmt if unit.stmt is not None else w.index.tree
+    return frozenset(n.id for n in ast.walk(tree) if isinstance(n, ast.Name)) | frozenset(
+        a.arg for a in ast.walk(tree) if isinstance(a, ast.arg))
 
 
 def _used_outside(w: "Walker", loop: ast.For, name: str) -> bool:
