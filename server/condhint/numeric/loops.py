@@ -132,7 +132,6 @@ def analyse_loop(rec: Recurrence, cfg: Config, deadline: Deadline | None = None,
         return None
     ranges, cols, n, steps, elements = _samples(rec, cfg)
     marks = checkpoints_for(steps)
-    u, total = BINARY64.unit_roundoff, BINARY64.digits
     with np.errstate(all="ignore"):
         run64 = iterate(rec, cols, elements, steps, F64_BACKEND, n, marks, deadline)
     dps = DPS
