@@ -23,6 +23,7 @@ from condhint import __version__
 from condhint.config import Config
 from condhint.expr import Span
 from condhint.findings import FileReport, Finding, Fix, InputInfo
+from condhint.reading.imported import dependency_stamp
 
 DEFAULT_MAX_BYTES = 256 * 1024 * 1024
 FORMAT = 1  # bump when the stored layout changes
@@ -182,7 +183,9 @@ class DiskCache:
             raw = target.path.read_bytes()
         except OSError:
             return check(target, cfg, fixes)  # reported as unreadable by `check`
-        key = self.key(raw, cfg.for_path(target.shown), fixes)
+        # inlined calls into the package's other files make the report depend on them (issue 15)
+        stamp = dependency_stamp(raw.decode("utf-8", "replace"), str(target.path))
+        key = self.key(raw + stamp.encode(), cfg.for_path(target.shown), fixes)
         hit = self.get(key, target.shown)
         if hit is not None:
             return hit

@@ -17,12 +17,16 @@ from condhint.budget import OverBudget, run_with_budget
 from condhint.config import Config
 from condhint.expr import INPUT, Node, Span, topological
 from condhint.findings import SEVERITY_RANK, FileReport, Finding
+from condhint.loop_findings import loop_findings
 from condhint.numeric.analysis import Analysis, analyse
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
 from condhint.reading.comments import Clauses
+from condhint.reading.imported import dependency_stamp
 from condhint.reading.module_index import ModuleIndex, Unit, read_module
 from condhint.reading.statements import Walker
+from condhint.recurrence import Recurrence
 from condhint.site import Site
+from condhint.kinds import NOT_ANALYSED
 from condhint.site_findings import finding_for, not_analysed
 from condhint.symbolic import kappa_formula_text
 
@@ -76,6 +80,7 @@ class AnalysisCache(Lru[Analysis]):
 
 
 DEFAULT_CACHE = AnalysisCache(capacity=8000)  # about 2.5 KiB an entry
+LOOP_CACHE: Lru[object] = Lru(2000)  # loop measurements by structure, ranges and settings (`loop_findings`)
 
 
 @dataclass
@@ -89,6 +94,7 @@ class UnitAnalysis:
     findings: list[Finding] = field(default_factory=list)
     left: list[Site] = field(default_factory=list)  # not analysed: the time budget ran out
     constants: dict[str, Node] = field(default_factory=dict, repr=False)  # module constants its nodes share
+    recurrences: list[Recurrence] = field(default_factory=list)  # its loops read as recurrences (issue 15)
 
     def site(self, number: int) -> Site | None:
         return self.sites[number] if 0 <= number < len(self.sites) else None
@@ -251,10 +257,20 @@ def analyse_unit(index: ModuleIndex, unit: Unit, key: str, path: str, cfg: Confi
         prev = best.get(k)
         if prev is None or (f.digits_lost or 0) > (prev.digits_lost or 0):
             best[k] = f
+    # ---- loops read as recurrences (issue 15): measured by iterating them, `loop_findings.py` ----
+    out.recurrences = walker.recurrences
+    if walker.recurrences and budget.open():
+        for f in loop_findings(walker.recurrences, cfg, path, key, LOOP_CACHE):
+            k = (f.span.line, f.span.col, f.span.end_line, f.span.end_col, f.code)
+            if f.code == NOT_ANALYSED.code:
+                problems.append(f)
+            elif k not in best or (f.digits_lost or 0) > (best[k].digits_lost or 0):
+                best[k] = f
     findings = sorted(best.values(), key=lambda f: (f.span.line, f.span.col, f.code))
     if cfg.kappa_formula:
         for f in findings:
-            site = out.site(int(f.origin.rpartition("#")[2]))
+            number = f.origin.rpartition("#")[2]
+            site = out.site(int(number)) if number.isdigit() else None
             f.kappa_formula = kappa_formula(site, cfg) if site is not None else None
     out.findings = problems + findings
     return out
@@ -307,7 +323,9 @@ def analyse_module(text: str, path: str, cfg: Config, cache: AnalysisCache | Non
         for e in c.errors:
             report.findings.append(not_analysed(path, Span(c.line, 0, c.line, len(index.source.lines[c.line - 1])),
                                                 f"condhint comment not understood: {e}"))
-    settings = settings_key(cfg)
+    index.path = path
+    # a unit's analysis may depend on the package files its calls are inlined from (issue 15)
+    settings = settings_key(cfg) + dependency_stamp(text, path)
     budget = _Budget(cfg.file_budget)
     left: list[Site] = []
     for i, unit in enumerate(index.units):
@@ -331,6 +349,7 @@ def analyse_module(text: str, path: str, cfg: Config, cache: AnalysisCache | Non
             progress(i + 1, len(index.units))
     if left and units is None:
         report.findings.append(_budget_left(path, left, cfg))
+    report.findings = _worst_per_range(report.findings)
     _apply_suppressions(report, index.comments)
     report.findings = [f for f in report.findings if SEVERITY_RANK[f.severity] >= SEVERITY_RANK[cfg.min_severity]]
     report.findings.sort(key=lambda f: (f.span.line, f.span.col, f.code))
@@ -359,6 +378,21 @@ def kappa_formula(site: Site, cfg: Config, root: Node | None = None) -> str | No
             text = None
     _FORMULAS.put(key, text or _NO_FORMULA)
     return text
+
+
+def _worst_per_range(findings: list[Finding]) -> list[Finding]:
+    """One finding per flagged range and code: a function's own finding and the one its callers see through
+    inlining (with their ranges) can fall on the same operation; the larger loss is kept."""
+    best: dict[tuple[Span, str], Finding] = {}
+    out: list[Finding] = []
+    for f in findings:
+        if f.code == NOT_ANALYSED.code:
+            out.append(f)
+            continue
+        prev = best.get((f.span, f.code))
+        if prev is None or (f.digits_lost or 0) > (prev.digits_lost or 0):
+            best[(f.span, f.code)] = f
+    return out + list(best.values())
 
 
 def _apply_suppressions(report: FileReport, comments: list[Clauses]) -> None:

@@ -7,8 +7,9 @@ import types
 from dataclasses import replace
 
 from condhint.config import Config
-from condhint.engine import DEFAULT_CACHE, AnalysisCache, ModuleAnalysis, UnitCache, analyse_module
+from condhint.engine import DEFAULT_CACHE, LOOP_CACHE, AnalysisCache, ModuleAnalysis, UnitCache, analyse_module
 from condhint.findings import FileReport, Finding, Fix
+from condhint.loop_findings import LOOP, loop_fixes, loop_number
 from condhint.reading.module_index import read_module
 
 
@@ -27,9 +28,18 @@ def fixes_for(finding: Finding, ma: ModuleAnalysis, cfg: Config, cache: Analysis
               seconds: float | None = None) -> list[Fix]:
     """Verified fixes for one finding of `ma`, best first (empty when none is verified)."""
     package = rewrites()
+    loop = loop_number(finding.origin)
+    if loop is not None:  # a loop finding (issue 15): its fixes are verified by iterating the loop
+        owner = next((u for u in ma.units if u.key == finding.origin.rpartition(LOOP)[0]), None)
+        recs = owner.recurrences if owner is not None else []
+        return loop_fixes(recs[loop], finding, cfg, LOOP_CACHE) if loop < len(recs) else []
     site = ma.site_of(finding)
     unit = next((u for u in ma.units if u.key == finding.origin.rpartition("#")[0]), None)
     if package is None or site is None or unit is None or ma.index is None:
+        return []
+    if site.inlined:
+        # Operations inlined from a callee (issue 15): a rewrite would either edit a function other callers
+        # share, judged on this caller's ranges only, or spell the callee's names in the caller. None is offered.
         return []
     quiet = replace(cfg, kappa_formula=False)
     units = UnitCache(64)

@@ -6,6 +6,7 @@ from dataclasses import dataclass
 from typing import Callable
 
 from condhint.config import Config
+from condhint.loop_messages import recurrence_message
 from condhint.messages import Facts, domain_message, formula_message, inherent_message, overflow_message
 from condhint.numeric.analysis import Analysis
 
@@ -18,7 +19,7 @@ class Kind:
     title: str  # a short description (rule lists, SARIF)
     help: str  # what the finding means, for rule documentation (SARIF, `--statistics`)
     fixable: bool  # verified rewrites are searched for it
-    message: Callable[[Facts], str] | None = None
+    message: Callable[[Facts], str] | Callable[..., str] | None = None  # loop kinds take `LoopFacts`
     severity: Callable[..., str | None] = lambda *_: "info"  # (analysis, cfg) -> severity; None: not reported
 
 
@@ -65,6 +66,13 @@ KINDS: tuple[Kind, ...] = (
          "The formula loses digits to its own rounding at inputs on its range, although the result itself is "
          "well-conditioned: an algebraically equivalent formula can be more accurate.", True,
          formula_message, _on_enough_of_the_range),
+    # ---- loops (issue 15): measured by iterating the loop, see `loop_findings.py` ----
+    Kind("CH102", "unstable-recurrence", "recurrence",
+         "A loop recurrence that amplifies rounding errors",
+         "A loop computes each value from the previous ones in a way that multiplies the error already carried at "
+         "every step (errors grow geometrically, like n! for the recurrence I(n) = 1 - n I(n-1)), so the "
+         "rounding of the starting value and of each step eventually swamps the result. Running the recurrence "
+         "in the other direction, or a closed form, avoids it.", False, recurrence_message, _on_enough_of_the_range),
     Kind("CH201", "input-sensitivity", "inherent",
          "Result sensitive to errors in its inputs (inherent)",
          "The result is sensitive to its inputs (large condition number κ): errors already in the inputs are "

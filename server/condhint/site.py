@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, replace
+from typing import Any
 
 from condhint.expr import Node, Span
 from condhint.numeric.formats import BINARY64, Format
@@ -86,3 +87,6 @@ class Site:
     bindings: tuple[Binding, ...] = ()
     bindings_by_node: dict[int, Binding] = field(default_factory=dict, repr=False)
     float_format: Format = BINARY64  # the number format the expression computes in
+    # operations inlined from the module's own functions: id(node) -> the chain of calls it came through
+    # (`reading.inline.Call` records: function, call line, def line)
+    inlined: dict[int, tuple[Any, ...]] = field(default_factory=dict, repr=False)

@@ -26,6 +26,11 @@ def finding_for(site: Site, a: Analysis, cfg: Config, path: str, origin: str = "
     if severity == "info" and only_at_assumed_extremes(a, cfg):
         msg += declare_note(a)
     related = [(b.line, f"`{b.name}` is computed here") for b in site.bindings if b.line != flagged.span.line]
+    chain = site.inlined.get(id(flagged))
+    if chain:  # the operation is inside one of the module's own functions, inlined at the call (issue 15)
+        path_text = " → ".join(f"`{c.function}` (called at line {c.line})" for c in chain)
+        msg = f"In {path_text}, with the ranges of `{site.scope}`: {msg}"
+        related = [(c.line, f"`{c.function}` is called here and inlined") for c in chain] + related
     inputs = {k: InputInfo(a.bounds[k][0], a.bounds[k][1], a.sources[k],
                            site.ranges[k].uncertainty if k in site.ranges else None, a.kappa_i.get(k))
               for k in a.names}

@@ -8,6 +8,7 @@ from condhint.expr import CONST, SELECT, Node
 from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.formats import BINARY64, Format
 from condhint.reading.dtypes import cast_target, dtype_keyword
+from condhint.reading.inline import inline_call
 from condhint.reading.integers import makes_object, returns_int
 from condhint.reading.names import INT_BUILTINS, literal_number
 
@@ -29,6 +30,10 @@ def convert_call(conv: "Converter", e: ast.Call) -> Node | None:
     if cast is not None and cast[0] is not BINARY64:
         return _converted(conv, e, *cast)
     fid = names.function(e.func)
+    if fid is None and isinstance(e.func, ast.Name) and (e.func.id in conv.w.index.definitions or conv.w.index.path):
+        inlined = inline_call(conv, e)  # one of the project's own functions (`inline.py`)
+        if inlined is not None:
+            return inlined
     if isinstance(e.func, ast.Name) and e.func.id in INT_BUILTINS and e.func.id not in conv.env:
         return conv.opaque(e, e.func.id != "round" or returns_int(e))  # round(x, 2) is a float
     if fid is None and returns_int(e):

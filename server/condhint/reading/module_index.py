@@ -15,9 +15,11 @@ import warnings
 from collections import OrderedDict
 from dataclasses import dataclass, replace
 from functools import cached_property
+from pathlib import Path
 
 from condhint.expr import Node, Span
 from condhint.reading.comments import Clauses, find_comments
+from condhint.reading.imported import load
 from condhint.reading.names import Names
 from condhint.reading.source import Source
 from condhint.reading.targets import DEFS
@@ -70,6 +72,8 @@ class ModuleIndex:
 
     def __init__(self, text: str, tree: ast.Module, problem: SyntaxProblem | None = None) -> None:
         self.text = text
+        self.path = ""  # the file the text was read from ("" when unknown): package imports resolve from it
+        self.imports: dict | None = None  # `reading.imported.imported_functions`, computed once when first needed
         self.source = Source(text)
         self.problem = problem  # tolerant reading: why the original text does not parse
         self._tree: ast.Module | None = tree
@@ -124,6 +128,10 @@ class ModuleIndex:
     def comment_at(self) -> dict[int, Clauses]:
         return {c.line: c for c in self.comments}
 
+    def read_other(self, path: Path) -> "ModuleIndex | None":
+        """The index of another file of the package (`reading.imported`), read from disk, never run."""
+        return load(path, lambda text: read_module(text)[0])
+
     def unit_at(self, line: int) -> Unit:
         """The definition holding a line, else the module-level code."""
         return next((u for u in self.units[1:] if u.owns(line)), self.units[0])
@@ -134,6 +142,11 @@ class ModuleIndex:
         for u in self.units[1:]:
             by_name.setdefault(u.name, []).append(u)
         return by_name
+
+    @property
+    def definitions(self) -> dict[str, list[Unit]]:
+        """Top-level definitions by name (a name defined twice has two)."""
+        return self._definitions
 
     def calls(self, unit: Unit) -> frozenset[str]:
         """The top-level definitions a unit calls by name."""

@@ -17,9 +17,12 @@ from condhint.reading.comments import Clauses
 from condhint.reading.dtypes import format_of_annotation
 from condhint.reading.integers import int_annotation, int_default, used_as_integers
 from condhint.reading.expressions import BINOPS, Converter
+from condhint.reading.inline import Call
 from condhint.reading.loops import walk_loop
 from condhint.reading.ranges import Constraint, Context, assume, declared_ranges, parameter_constraints, site_ranges
+from condhint.reading.recurrences import read_recurrence
 from condhint.reading.targets import FUNCS, assignments, bound_names, exits, target_names
+from condhint.recurrence import Recurrence
 from condhint.site import Binding, Site
 
 if TYPE_CHECKING:
@@ -47,6 +50,21 @@ class Walker:
         self._claimed: set[int] = set()
         self._bindings: dict[int, Binding] = {}
         self._inputs: dict[str, dict[str, Node]] = {}
+        self.recurrences: list[Recurrence] = []  # loops read as recurrences (`reading/recurrences.py`)
+        # calls into the module's own functions (`reading/inline.py`): which are inlinable, the chain of calls
+        # being inlined, and the chain each inlined operation came through
+        self.inlinable: dict[str, ast.FunctionDef | None] = {}
+        self.calling: list[Call] = []
+        self.inlined: dict[int, tuple[Call, ...]] = {}
+        self._foreign: dict[str, Walker] = {}
+
+    def foreign(self, index: "ModuleIndex") -> "Walker":
+        """A walker over another module of the package, sharing this one's chain of calls being inlined."""
+        w = self._foreign.get(index.path)
+        if w is None or w.index is not index:
+            w = self._foreign[index.path] = Walker(index, self.max_nodes)
+            w.calling = self.calling
+        return w
 
     # ---- units and scopes -------------------------------------------------------------------------------
     def walk(self, unit: "Unit") -> list[Site]:
@@ -178,6 +196,9 @@ class Walker:
             assume(conv, stmt.test, True, ctx, "assert", stmt.lineno)
             return
         if isinstance(stmt, (ast.For, ast.AsyncFor, ast.While)):
+            rec = read_recurrence(self, scope, stmt, env, ctx) if isinstance(stmt, ast.For) else None
+            if rec is not None:
+                self.recurrences.append(rec)  # measured over its trip count (`numeric/loops.py`)
             walk_loop(self, scope, stmt, env, ctx, conv)
             return
         if isinstance(stmt, (ast.With, ast.AsyncWith)):
@@ -338,10 +359,11 @@ class Walker:
             return
         ranges, filters = site_ranges(nodes, conv.ctx)
         bindings = {id(n): self._bindings[id(n)] for n in nodes if id(n) in self._bindings}
+        inlined = {id(n): self.inlined[id(n)] for n in nodes if id(n) in self.inlined} if self.inlined else {}
         self.sites.append(Site(root=root, scope=conv.scope, span=root.span, statement_line=conv.stmt.lineno,
                                ranges=ranges, filters=filters, float_format=root.format,
                                bindings=tuple(sorted(set(bindings.values()), key=lambda b: b.line)),
-                               bindings_by_node=bindings))
+                               bindings_by_node=bindings, inlined=inlined))
 
 
 def _wider(a: Node | None, b: Node | None) -> Node | None:
