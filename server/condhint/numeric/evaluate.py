@@ -60,7 +60,7 @@ def forward(nodes: list[Node], inputs: dict[str, np.ndarray], backend: Any, n: i
             else:
                 fn = OPERATIONS[k]
                 args = [vals[id(x)] for x in node.args]
-                if backend is MP_BACKEND:
+                if backend is not F64_BACKEND:
                     vals[id(node)] = fn.mp(*args)
                 elif node.format is BINARY64:
                     vals[id(node)] = fn.f64(*args)

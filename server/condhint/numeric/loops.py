@@ -52,6 +52,8 @@ class LoopAnalysis:
     worst_at: dict[str, float] = field(default_factory=dict)
     fraction: float = 0.0  # share of samples losing ≥ the info threshold
     declared: bool = True  # no input range is the guessed default
+    assumed: list[str] = field(default_factory=list)  # not used by loops: their figures are reported as measured
+    ordinary_digits: float | None = None
 
     @property
     def extrapolated(self) -> bool:

@@ -101,7 +101,7 @@ def read_recurrence(w: "Walker", scope: str, stmt: ast.For, env: dict[str, Node 
 
 def _names_of_unit(w: "Walker", loop: ast.For) -> frozenset[str]:
     unit = w.index.unit_at(loop.lineno)
-    tree: ast.AST = unit.stmt if unit.stmt is not None else w.index.tree
+    tree: ast.AST = w.index.statement(unit) or w.index.tree
     return frozenset(n.id for n in ast.walk(tree) if isinstance(n, ast.Name)) | frozenset(
         a.arg for a in ast.walk(tree) if isinstance(a, ast.arg))
 
@@ -109,7 +109,7 @@ def _names_of_unit(w: "Walker", loop: ast.For) -> frozenset[str]:
 def _used_outside(w: "Walker", loop: ast.For, name: str) -> bool:
     """Whether `name` appears in the loop's unit outside the loop (a loop's target stays bound after it)."""
     unit = w.index.unit_at(loop.lineno)
-    tree: ast.AST = unit.stmt if unit.stmt is not None else w.index.tree
+    tree: ast.AST = w.index.statement(unit) or w.index.tree
     end = loop.end_lineno or loop.lineno
     return any(isinstance(n, ast.Name) and n.id == name and not loop.lineno <= n.lineno <= end
                for n in ast.walk(tree))
