@@ -8,6 +8,7 @@ import pytest
 
 from condhint.config import Config
 from condhint.engine import analyse_module
+from condhint.expr import topological
 
 CFG = Config(kappa_formula=False)
 
@@ -156,3 +157,20 @@ def test_inf_times_zero_is_an_overflow_not_a_domain_error() -> None:
     (f,) = analysed("import math\ndef f(x):  # condhint: 750 <= x <= 800\n"
                     "    return math.exp(x) * math.exp(-x) * x\n").report.findings
     assert f.code == "CH301" and f.expression == "math.exp(x)"
+
+
+def test_finfo_limits_are_the_format_records_constants() -> None:
+    # np.finfo(float).eps is 2**-52 and np.finfo(np.float32).tiny 2**-126 (IEEE 754-2019; numpy's finfo)
+    import numpy as np
+
+    (site,) = analysed("import numpy as np\ndef f(x):\n    return (1 + np.finfo(float).eps) * x "
+                       "- x * np.finfo(np.float32).tiny\n").sites
+    consts = sorted(n.value for n in topological(site.root) if n.kind == "const")
+    assert consts == sorted([1.0, float(np.finfo(float).eps), float(np.finfo(np.float32).tiny)])
+    assert set(site.ranges) == {"x"}  # no input stands for the limits
+
+
+def test_arange_of_names_gives_integers() -> None:
+    assert codes("import numpy as np\ndef f(k, m: int):\n    n = np.arange(k)[0]\n    return (n + m) - n\n") == []
+    assert codes("import numpy as np\ndef f(k, m):\n    n = np.arange(0.5, k)[0]\n    return (n + m) - n\n") == \
+        ["CH101"]

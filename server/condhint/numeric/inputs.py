@@ -15,6 +15,7 @@ from condhint.site import InputRange, Interval, Site
 # Magnitudes an input of unknown range ordinarily has: a loss the assumed range shows only beyond them (a level
 # in dB at -1e6, an exponent of 1e6) is reported at most as information (docs/configuration.md).
 ORDINARY = (1e-3, 1e3)
+GUESSED = ("default", "parameter default")  # range sources that are guesses: the assumed range, a default's scale
 
 
 

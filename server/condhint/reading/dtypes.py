@@ -6,6 +6,7 @@ Nothing is imported or run: dtypes are recognised by how they are spelled.
 from __future__ import annotations
 
 import ast
+from fractions import Fraction
 
 from condhint.expr import CONST, Node
 from condhint.numeric.formats import BINARY64, FORMATS, Format, format_named, promote
@@ -39,6 +40,21 @@ def format_of_dtype(e: ast.expr | None, names: Names) -> Format | None:
     if isinstance(e, ast.Call) and _is_numpy_attr(e.func, "dtype", names) and len(e.args) == 1:
         return format_of_dtype(e.args[0], names)
     return None
+
+
+_LIMITS = {"eps": lambda f: 2 * f.unit_roundoff, "epsneg": lambda f: f.unit_roundoff, "tiny": lambda f: f.smallest_normal,
+           "smallest_normal": lambda f: f.smallest_normal, "smallest_subnormal": lambda f: f.smallest_subnormal,
+           "max": lambda f: f.largest}
+
+
+def format_limit(e: ast.Attribute, names: Names) -> Fraction | None:
+    """`np.finfo(np.float32).eps`, `np.finfo(float).max`: the exact limit from the format record."""
+    call = e.value
+    if e.attr not in _LIMITS or not isinstance(call, ast.Call) or len(call.args) != 1 or \
+            _numpy_callee(call.func, names) != "finfo":
+        return None
+    fmt = format_of_dtype(call.args[0], names)
+    return None if fmt is None else Fraction(_LIMITS[e.attr](fmt))
 
 
 def format_of_annotation(e: ast.expr | None, names: Names) -> Format | None:

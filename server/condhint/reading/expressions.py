@@ -12,7 +12,7 @@ from typing import TYPE_CHECKING
 from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, Span
 from condhint.numeric.formats import BINARY64, Format
 from condhint.reading.calls import convert_call
-from condhint.reading.dtypes import in_format, result_format
+from condhint.reading.dtypes import format_limit, in_format, result_format
 from condhint.reading.loops import comprehension_scope
 from condhint.reading.ranges import CMPOPS, Context
 
@@ -99,6 +99,11 @@ class Converter:
                 return _named_const(c, self.w.source.span(e), self.w.source.segment(self.w.source.span(e)))
             if e.attr in ("size", "ndim", "shape"):  # integers (a shape is a tuple of them)
                 return self.leaf(e, True)
+            limit = format_limit(e, self.w.names)
+            if limit is not None:  # np.finfo(float).eps: a constant of the format record
+                span = self.w.source.span(e)
+                return Node(CONST, value=float(limit), exact=f"{limit.numerator}/{limit.denominator}", span=span,
+                            text=self.w.source.segment(span))
             return self.leaf(e)
         if isinstance(e, ast.Subscript):
             base = e.value

@@ -45,8 +45,8 @@ def returns_int(call: ast.Call) -> bool:
         return True
     if name == "round":
         return len(call.args) == 1 and not call.keywords
-    if name == "arange":
-        return all(isinstance(a, ast.Constant) and isinstance(a.value, int) for a in call.args) and not any(
+    if name in ("arange", "indices"):  # integers unless a bound or step is a float literal or a dtype is given
+        return not any(isinstance(a, ast.Constant) and isinstance(a.value, float) for a in call.args) and not any(
             k.arg == "dtype" for k in call.keywords)
     return False
 
