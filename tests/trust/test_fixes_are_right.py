@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from condhint.config import Config
 from condhint.expr import topological
 from condhint.rewrites import codegen, dag
 from tests.rewrites.support import analysed, context_for
@@ -49,3 +50,23 @@ def test_a_name_rebound_before_the_fix_is_never_written() -> None:
 
 
 _nodes = topological
+
+def test_a_fix_less_accurate_at_the_other_sign_is_not_offered() -> None:
+    # The quadratic-root rewrite 2c / (-b - sqrt(b² - 4ac)) avoids cancellation for b > 0 and creates it for
+    # b < 0 (Forsythe 1966; checked in binary64 against mpmath at a = 1, b = -1e4, c = 1: 0 vs 7 digits lost):
+    # offered only where the code fixes b's sign.
+    from condhint.fixing import attach_fixes
+
+    src = """
+        from math import sqrt
+        def root(a, b, c):{decl}
+            DD = b * b - 4.0 * a * c
+            return (-b + sqrt(DD)) / 2.0 / a
+        """
+    unknown = analysed(src.format(decl=""))
+    attach_fixes(unknown, Config())
+    assert all(not f.fixes for f in unknown.report.findings)
+    declared = analysed(src.format(decl="  # condhint: 0.5 <= a <= 2, 1e3 <= b <= 1e5, 0.5 <= c <= 2"))
+    attach_fixes(declared, Config())
+    (f,) = declared.report.findings
+    assert f.fixes and f.fixes[0].rule == "quadratic-root"
