@@ -2,7 +2,7 @@
 from __future__ import annotations
 
 from condhint.config import Config
-from condhint.expr import Span, topological
+from condhint.expr import CONST, INPUT, Span, topological
 from condhint.findings import Finding, InputInfo
 from condhint.kinds import BY_CATEGORY, NOT_ANALYSED, only_at_assumed_extremes
 from condhint.messages import Facts, declare_note
@@ -13,8 +13,10 @@ from condhint.site import Site
 def finding_for(site: Site, a: Analysis, cfg: Config, path: str, origin: str = "") -> Finding | None:
     """The finding a site's analysis reports, or None; `origin` is the link back to the site (see
     `engine.ModuleAnalysis.site_of`)."""
-    if a.category is None or a.digits is None:
+    if a.category is None or a.digits is None or _integer_bookkeeping(site, a):
         return None
+    if a.category == "overflow" and not _has_inputs(site):
+        return None  # `1e300 * 1e300`: an infinity made on purpose
     kind = BY_CATEGORY["domain" if a.category == "domain-range" else a.category]
     severity = kind.severity(a, cfg)
     if severity is None or kind.message is None:
@@ -47,3 +49,20 @@ def finding_for(site: Site, a: Analysis, cfg: Config, path: str, origin: str = "
 def not_analysed(path: str, span: Span, reason: str, scope: str = "", expression: str = "") -> Finding:
     return Finding(path=path, span=span, code=NOT_ANALYSED.code, severity=NOT_ANALYSED.severity(),
                    message=reason, scope=scope, expression=expression)
+
+
+def _has_inputs(site: Site) -> bool:
+    """Whether the expression depends on anything but constants."""
+    return any(n.kind == INPUT for n in topological(site.root))
+
+
+def _integer_bookkeeping(site: Site, a: Analysis) -> bool:
+    """`n - 1`, `size - 128`, `k * m + 2`: sums and products of names and integer literals only look like counts,
+    offsets and sizes, exact when (as they nearly always are) the names hold integers. Reported only when every
+    input's range is declared in a comment."""
+    for n in topological(site.root):
+        if n.kind == CONST and not n.is_int:
+            return False
+        if n.kind not in (INPUT, CONST, "add", "sub", "mul", "neg"):
+            return False
+    return any(src != "comment" for src in a.sources.values())

@@ -9,7 +9,7 @@ from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.formats import BINARY64, Format
 from condhint.reading.dtypes import cast_target, dtype_keyword
 from condhint.reading.inline import inline_call
-from condhint.reading.integers import makes_object, returns_int
+from condhint.reading.integers import in_context_object, makes_object, returns_int
 from condhint.reading.names import INT_BUILTINS, literal_number
 
 if TYPE_CHECKING:
@@ -38,7 +38,7 @@ def convert_call(conv: "Converter", e: ast.Call) -> Node | None:
         return conv.opaque(e, e.func.id != "round" or returns_int(e))  # round(x, 2) is a float
     if fid is None and returns_int(e):
         return conv.opaque(e, True)
-    if fid is None and makes_object(e, set()):
+    if fid is None and (makes_object(e, set()) or in_context_object(e.func)):
         conv.opaque(e)  # its arguments are still read
         return None  # an object of a class the code does not show to be a float: not analysed
     if fid is None or any(isinstance(a, ast.Starred) for a in e.args) or any(

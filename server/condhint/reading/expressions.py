@@ -13,6 +13,7 @@ from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, Span
 from condhint.numeric.formats import BINARY64, Format
 from condhint.reading.calls import convert_call
 from condhint.reading.dtypes import format_limit, in_format, result_format
+from condhint.reading.integers import in_context_object
 from condhint.reading.loops import comprehension_scope
 from condhint.reading.ranges import CMPOPS, Context
 
@@ -94,6 +95,8 @@ class Converter:
         if isinstance(e, ast.Name):
             return self._name(e)
         if isinstance(e, ast.Attribute):
+            if in_context_object(e):
+                return None  # a number of an arithmetic context (mpmath's `ctx`): not binary64
             c = self.w.names.constant(e)
             if c is not None:
                 return _named_const(c, self.w.source.span(e), self.w.source.segment(self.w.source.span(e)))

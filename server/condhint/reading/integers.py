@@ -6,7 +6,8 @@ or list, the argument of `range`, an array length, `math.comb`/`factorial`. Resu
 integers (`np.arange` of integers, `argmax`, `nonzero`, …) are integers too. Objects of classes the code does
 not define (a call of a CamelCase name that is not a known conversion: `Time(…)`, `Quantity(…)`) are not
 binary64 numbers unless the code shows it: their arithmetic may be exact, symbolic, of another precision, or
-not arithmetic at all, so they are not analysed.
+not arithmetic at all, so they are not analysed; nor are the numbers of an arithmetic context object (`ctx.mpf(2)`,
+`ctx.eps` in mpmath's own functions).
 """
 from __future__ import annotations
 
@@ -58,6 +59,14 @@ def makes_object(call: ast.Call, known: set[str]) -> bool:
     f = call.func
     name = f.attr if isinstance(f, ast.Attribute) else f.id if isinstance(f, ast.Name) else ""
     return bool(name) and name[0].isupper() and any(c.islower() for c in name) and name not in known
+
+
+CONTEXTS = {"ctx"}  # names of arithmetic-context objects (mpmath's convention): their numbers are not binary64
+
+
+def in_context_object(e: ast.expr) -> bool:
+    """`ctx.mpf(2)`, `ctx.eps`, `ctx.j`: values of an arithmetic context, with their own precision and range."""
+    return isinstance(e, ast.Attribute) and isinstance(e.value, ast.Name) and e.value.id in CONTEXTS
 
 
 def used_as_integers(body: list[ast.stmt]) -> set[str]:

@@ -334,13 +334,18 @@ class Walker:
     # ---- sites ------------------------------------------------------------------------------------------
     def scan(self, conv: Converter, expr: ast.expr) -> Node | None:
         """Convert an expression, making sites of its maximal numeric parts; returns its node. Values only
-        formatted into a string (f-strings) are not analysed: their digits are for display."""
+        formatted into a string (f-strings) are not analysed: their digits are for display; nor are the operands
+        of a comparison (`if abs(x - prev) < tol`, `while r != 0`), which decide a branch rather than give a
+        result (a condition's ranges still narrow what follows: `ranges.assume`)."""
         if isinstance(expr, ast.JoinedStr):
             return None
+        if isinstance(expr, ast.Compare):  # a test: its operands decide a branch, their digits are no result's
+            conv.scanned.add(id(expr))
+            return conv.convert(expr)
         node = conv.convert(expr)
-        if node is not None and node.kind not in (INPUT, CONST, "compare"):
+        if node is not None and node.kind not in (INPUT, CONST):
             self._add_site(node, conv)
-        elif node is None or node.kind == "compare":
+        elif node is None:
             for child in ast.iter_child_nodes(expr):
                 if isinstance(child, ast.expr) and id(child) not in conv.scanned:
                     self.scan(conv, child)
