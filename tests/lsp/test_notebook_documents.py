@@ -47,8 +47,8 @@ def open_notebook(client, tmp_path, cells=CELLS) -> tuple[str, list[str]]:  # no
     return nb, uris
 
 
-def published(client, uri: str, pred=lambda p: True):  # noqa: ANN001
-    return client.recorder.expect(PUBLISH, lambda p: p.uri == uri and pred(p))
+def published(client, uri: str, pred=lambda p: True, past: bool = False):  # noqa: ANN001
+    return client.recorder.expect(PUBLISH, lambda p: p.uri == uri and pred(p), past=past)
 
 
 def change_cell(client, nb: str, uri: str, version: int, text: str) -> None:  # noqa: ANN001
@@ -150,3 +150,6 @@ async def test_pull_diagnostics_for_a_cell(lsp, tmp_path):
     first = await within(client.text_document_diagnostic_async(types.DocumentDiagnosticParams(
         text_document=types.TextDocumentIdentifier(uri=uris[0]))))
     assert list(first.items) == []
+    # Pushed as well: vscode-languageclient never pulls for notebook cells.
+    pushed = await within(published(client, uris[3], lambda p: p.diagnostics, past=True))
+    assert [d.code for d in pushed.diagnostics] == ["CH101"]

@@ -101,7 +101,7 @@ def did_save(ls: "CondhintServer", params: types.DidSaveNotebookDocumentParams) 
 
 def did_close(ls: "CondhintServer", params: types.DidCloseNotebookDocumentParams) -> None:
     state = ls.docs.close(params.notebook_document.uri)
-    if isinstance(state, NotebookState) and not ls.pull:
+    if isinstance(state, NotebookState):  # pushed even to pulling clients (see NotebookAnalyser)
         for cell in state.cells:
             ls.analyser.clear(cell.uri)
 
@@ -129,6 +129,13 @@ def cell_diagnostics(ls: "CondhintServer", state: NotebookState, cell: Cell) -> 
 
 class NotebookAnalyser(Analyser):
     """Publishes a notebook's diagnostics on its cells (every cell, so fixed ones are cleared)."""
+
+    def enrich(self, state: DocumentState, cfg) -> None:  # noqa: ANN001 - condhint.config.Config
+        """Runs after every analysis that is still current. vscode-languageclient 9 pulls diagnostics only for
+        documents shown in text tabs, never for notebook cells: a notebook's are pushed to pulling clients too."""
+        if isinstance(state, NotebookState) and self.ls.pull:
+            self.publish(state)
+        super().enrich(state, cfg)
 
     def publish(self, state: DocumentState) -> None:
         if not isinstance(state, NotebookState):
