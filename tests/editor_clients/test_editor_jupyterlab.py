@@ -153,17 +153,19 @@ def operator_point(page: Any, line: Any, needle: str) -> tuple[float, float]:
 
 @pytest.mark.slow
 def test_notebook_diagnostics_hover_and_magics(lab: Lab, page: Any, tmp_path: Path) -> None:
+    opened = time.monotonic()
     page.goto(f"{lab.url}/lab/tree/roots.ipynb")
     gap = cell(page, "def gap")
     gap.wait_for()
-    opened = time.monotonic()
+    shown = time.monotonic()
     lint = gap.locator(".cm-editor .cm-lintRange")
     try:
         lint.first.wait_for()
     except Exception as exc:
         raise AssertionError(f"no diagnostic; /lsp/status: {_lsp_status(lab)}\n{lab.log.read_text()[-4000:]}") from exc
-    record_timing("JupyterLab", "roots.ipynb cell rendered -> first diagnostic (includes starting the server)",
-                  time.monotonic() - opened)
+    diagnosed = time.monotonic()
+    record_timing("JupyterLab", "roots.ipynb: page load -> cells shown (loads JupyterLab itself)", shown - opened)
+    record_timing("JupyterLab", "roots.ipynb: cells shown -> first diagnostic (starts the server)", diagnosed - shown)
 
     # Found by its entry point: jupyter-lsp lists it with no configuration written by hand.
     status = _lsp_status(lab)
