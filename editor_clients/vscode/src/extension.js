@@ -68,6 +68,8 @@ async function createClient() {
   reportProblems(problems);
   output.appendLine(`[server] starting ${[command.command, ...command.args].join(" ")} (from ${command.source})`);
 
+  // With the stdio transport, vscode-languageclient appends `--stdio` to the command line;
+  // `condhint serve` accepts it (and `--pipe`, `--socket`, `--clientProcessId`).
   /** @type {import("vscode-languageclient/node").ServerOptions} */
   const serverOptions = {
     command: command.command,
@@ -80,6 +82,9 @@ async function createClient() {
     documentSelector: [
       { scheme: "file", language: "python" },
       { scheme: "untitled", language: "python" },
+      // Python cells of notebooks (.ipynb): the server synchronises whole notebooks (notebookDocument/*),
+      // and this entry lets hover and code actions reach the cells.
+      { notebook: "*", language: "python" },
     ],
     outputChannel: output,
     initializationOptions: { condhint: currentSettings() },

@@ -160,7 +160,8 @@ test("only the server command needs a restart", () => {
 test("manifest: restart command and activation", () => {
   const commands = manifest.contributes.commands.map((c) => `${c.category}: ${c.title}`);
   assert.ok(commands.includes("condhint: Restart server"));
-  assert.deepEqual(manifest.activationEvents, ["onLanguage:python"]);
+  // Python files, and notebooks (whose Python cells the server analyses as one module).
+  assert.deepEqual(manifest.activationEvents, ["onLanguage:python", "onNotebook:jupyter-notebook"]);
   // vscode-languageclient 9.x requires VS Code >= 1.82 (its own engines field).
   const lc = JSON.parse(fs.readFileSync(require.resolve("vscode-languageclient/package.json"), "utf8"));
   const need = lc.engines.vscode.replace(/^[^\d]*/, "").split(".").map(Number);

@@ -18,6 +18,7 @@ from condhint.lsp.convert import (Positions, result_id, to_lsp_hover, to_lsp_inl
                                   to_lsp_workspace_edit)
 from condhint.lsp.settings import SECTION, resolve, section_of
 from condhint.lsp.state import DocumentState, relative_to
+from condhint.lsp.transport import watch_client
 
 if TYPE_CHECKING:
     from condhint.lsp.server import CondhintServer
@@ -33,6 +34,7 @@ CONFIG_WAIT = 5.0
 # ---- lifecycle and settings ---------------------------------------------------------------------------------
 def initialize(ls: "CondhintServer", params: types.InitializeParams) -> None:
     ls.init_options = params.initialization_options
+    watch_client(params.process_id)
     root = params.workspace_folders[0].uri if params.workspace_folders else params.root_uri
     path = to_fs_path(root) if root else params.root_path
     ls.root = Path(path) if path else None

@@ -21,9 +21,8 @@ from pygls.workspace.position_codec import PositionCodec
 
 from condhint import __version__
 from condhint.config import Config
-from condhint.lsp import handlers
+from condhint.lsp import handlers, notebook
 from condhint.lsp.actions import KINDS
-from condhint.lsp.analysing import Analyser
 from condhint.lsp.background import Background
 from condhint.lsp.settings import Settings
 from condhint.lsp.state import Documents
@@ -85,6 +84,8 @@ class CondhintProtocol(LanguageServerProtocol):
         """pygls 2.1 keeps the future of every handled notification; forget each one once it is done, or a
         long editing session grows by a few KiB per keystroke (measured by tests/benchmarks/soak_lsp.py)."""
         super()._check_handler_result(future)
+        if future.cancelled():
+            return  # pygls cancels while iterating over the futures (shutdown) and pops them itself ($/cancelRequest)
         for key, fut in list(self._request_futures.items()):
             if fut is future:
                 self._request_futures.pop(key, None)
@@ -93,7 +94,8 @@ class CondhintProtocol(LanguageServerProtocol):
 
 class CondhintServer(LanguageServer):
     def __init__(self) -> None:
-        super().__init__("condhint", __version__, protocol_cls=CondhintProtocol)
+        super().__init__("condhint", __version__, protocol_cls=CondhintProtocol,
+                         notebook_document_sync=notebook.NOTEBOOK_SYNC)
         self.docs = Documents()
         self.settings = Settings(Config())
         self.init_options: Any = None
@@ -103,7 +105,7 @@ class CondhintServer(LanguageServer):
         self.loop: asyncio.AbstractEventLoop | None = None
         self.shut_down = False
         self.last_message: str | None = None
-        self.analyser = Analyser(self)
+        self.analyser = notebook.NotebookAnalyser(self)
         self.background = Background()
 
     # ---- what the client declared -------------------------------------------------------------------------
@@ -174,14 +176,18 @@ def features() -> list[tuple[str, Any, Any]]:
         (types.TEXT_DOCUMENT_DID_CHANGE, None, handlers.did_change),
         (types.TEXT_DOCUMENT_DID_SAVE, types.SaveOptions(include_text=False), handlers.did_save),
         (types.TEXT_DOCUMENT_DID_CLOSE, None, handlers.did_close),
+        (types.NOTEBOOK_DOCUMENT_DID_OPEN, None, notebook.did_open),
+        (types.NOTEBOOK_DOCUMENT_DID_CHANGE, None, notebook.did_change),
+        (types.NOTEBOOK_DOCUMENT_DID_SAVE, None, notebook.did_save),
+        (types.NOTEBOOK_DOCUMENT_DID_CLOSE, None, notebook.did_close),
         (types.WORKSPACE_DID_CHANGE_CONFIGURATION, None, handlers.did_change_configuration),
-        (types.TEXT_DOCUMENT_HOVER, None, handlers.hover),
+        (types.TEXT_DOCUMENT_HOVER, None, notebook.hover),
         (types.TEXT_DOCUMENT_INLAY_HINT, types.InlayHintOptions(resolve_provider=False), handlers.inlay_hints),
         (types.TEXT_DOCUMENT_CODE_ACTION, types.CodeActionOptions(code_action_kinds=list(KINDS),
-                                                                  resolve_provider=True), handlers.code_actions),
-        (types.CODE_ACTION_RESOLVE, None, handlers.resolve_code_action),
+                                                                  resolve_provider=True), notebook.code_actions),
+        (types.CODE_ACTION_RESOLVE, None, notebook.resolve_code_action),
         (types.TEXT_DOCUMENT_DIAGNOSTIC, types.DiagnosticOptions(identifier="condhint", inter_file_dependencies=False,
-                                                                 workspace_diagnostics=False), handlers.pull_diagnostics),
+                                                                 workspace_diagnostics=False), notebook.pull_diagnostics),
     ]
 
 

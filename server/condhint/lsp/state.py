@@ -59,11 +59,14 @@ class Documents:
         self._docs: dict[str, DocumentState] = {}
 
     def open(self, uri: str, path: str, version: int | None, text: str) -> DocumentState:
-        state = DocumentState(uri, path, version, text)
-        old = self._docs.get(uri)
+        return self.add(DocumentState(uri, path, version, text))
+
+    def add(self, state: DocumentState) -> DocumentState:
+        """Track `state` (a document, or a notebook's joined cells) under its URI, replacing an older one."""
+        old = self._docs.get(state.uri)
         if old is not None:
             old.closed = True
-        self._docs[uri] = state
+        self._docs[state.uri] = state
         return state
 
     def get(self, uri: str) -> DocumentState | None:
