@@ -37,6 +37,8 @@ def fixes_for(finding: Finding, ma: ModuleAnalysis, cfg: Config, cache: Analysis
     unit = next((u for u in ma.units if u.key == finding.origin.rpartition("#")[0]), None)
     if package is None or site is None or unit is None or ma.index is None:
         return []
+    if ma.index.names.uses_sympy or ma.index.names.uses_mpmath:
+        return []  # its values may be symbolic or of another precision: a `math` rewrite could not take them
     if site.inlined:
         # Operations inlined from a callee (issue 15): a rewrite would either edit a function other callers
         # share, judged on this caller's ranges only, or spell the callee's names in the caller. None is offered.

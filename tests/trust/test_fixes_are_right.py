@@ -70,3 +70,30 @@ def test_a_fix_less_accurate_at_the_other_sign_is_not_offered() -> None:
     attach_fixes(declared, Config())
     (f,) = declared.report.findings
     assert f.fixes and f.fixes[0].rule == "quadratic-root"
+
+
+def test_calls_with_out_or_where_keywords_are_not_rewritten() -> None:
+    # np.log(1 - p, out=…, where=1 - p >= 0) gives the out buffer's 0 where p > 1: log1p(-p) would give nan
+    from condhint.fixing import attach_fixes
+
+    src = "import numpy as np\ndef f(p, y):  # condhint: 1e-9 <= p <= 1e-6\n    return np.log(1 - p{kw}) * y\n"
+    plain = analysed(src.format(kw=""))
+    attach_fixes(plain, Config())
+    assert [f.fixes[0].replacement for f in plain.report.findings] == ["np.log1p(-p)"]
+    kept = analysed(src.format(kw=", out=np.zeros_like(p), where=1 - p >= 0"))
+    attach_fixes(kept, Config())
+    assert all(not f.fixes for f in kept.report.findings)
+
+
+def test_no_math_rewrites_in_modules_that_handle_symbolic_values() -> None:
+    # log(1 + x) → log1p(x) is right for floats; in a module importing sympy x may be a SymPy expression, which
+    # math.log1p cannot take (a TypeError found on real code with the compound-power rule)
+    from condhint.fixing import attach_fixes
+
+    src = "{imp}import math\ndef f(x):  # condhint: 1e-9 <= x <= 1e-6\n    return math.log(1 + x)\n"
+    floats = analysed(src.format(imp=""))
+    attach_fixes(floats, Config())
+    assert floats.report.findings and floats.report.findings[0].fixes
+    symbolic = analysed(src.format(imp="import sympy\n"))
+    attach_fixes(symbolic, Config())
+    assert symbolic.report.findings and not symbolic.report.findings[0].fixes

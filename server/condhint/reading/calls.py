@@ -15,7 +15,7 @@ from condhint.reading.names import INT_BUILTINS, literal_number
 if TYPE_CHECKING:
     from condhint.reading.expressions import Converter
 
-_KEYWORDS = ("dtype", "out", "where")  # keywords that do not change the value of an elementwise call
+_KEYWORDS = ("dtype",)  # keywords that do not change the value of an elementwise call (`out=`, `where=` do)
 
 
 def convert_call(conv: "Converter", e: ast.Call) -> Node | None:
