@@ -57,12 +57,14 @@ def _has_inputs(site: Site) -> bool:
 
 
 def _integer_bookkeeping(site: Site, a: Analysis) -> bool:
-    """`n - 1`, `size - 128`, `k * m + 2`: sums and products of names and integer literals only look like counts,
-    offsets and sizes, exact when (as they nearly always are) the names hold integers. Reported only when every
-    input's range is declared in a comment."""
+    """`n - 1`, `size - 128`, `k * m + 2`, `2 ** nbits`: sums, products and powers of names and integer literals
+    only look like counts, offsets and sizes, exact when (as they nearly always are) the names hold integers
+    (Python's integers do not overflow either). Reported only when every input's range is declared in a comment."""
     for n in topological(site.root):
         if n.kind == CONST and not n.is_int:
             return False
-        if n.kind not in (INPUT, CONST, "add", "sub", "mul", "neg"):
+        if n.kind == "pow" and n.args[1].kind == CONST and (n.args[1].value or 0) < 0:
+            return False  # 2 ** -k is a float
+        if n.kind not in (INPUT, CONST, "add", "sub", "mul", "neg", "pow"):
             return False
     return any(src != "comment" for src in a.sources.values())

@@ -197,3 +197,10 @@ def test_numbers_of_an_arithmetic_context_are_not_binary64() -> None:
     # mpmath's functions take a context `ctx` whose numbers have their own precision and an unbounded exponent
     assert codes("def f(ctx, k):\n    return ctx.mpf(2) ** (-k) - ctx.eps\n") == []
     assert codes("def f(obj, k):\n    return (obj.scale + k * 1.0) - obj.scale\n") == ["CH101"]
+
+
+def test_powers_of_integer_bookkeeping_and_angle_conversions() -> None:
+    # `2 ** nbits` is a Python integer (no overflow); math.radians(15) is a constant (math docs)
+    assert codes("def f(nbits):\n    return 2 ** nbits\n") == []
+    (site,) = analysed("import math\ndef f(x):\n    c = math.cos(math.radians(15))\n    return (1 - c) * x\n").sites
+    assert set(site.ranges) == {"x"}  # no input stands for math.radians(15)
