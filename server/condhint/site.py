@@ -77,3 +77,4 @@ class Site:
     bindings: tuple[Binding, ...] = ()
     bindings_by_node: dict[int, Binding] = field(default_factory=dict, repr=False)
     float_format: Format = BINARY64  # the number format the expression computes in
+    arrays: dict[str, Interval | None] = field(default_factory=dict)  # array inputs -> declared length (None: default)

@@ -89,6 +89,9 @@ def _name(node: ast.expr) -> str | None:
         return node.id
     if isinstance(node, ast.Attribute) and _name(node.value):
         return f"{_name(node.value)}.{node.attr}"
+    if (isinstance(node, ast.Call) and isinstance(node.func, ast.Name) and node.func.id == "len"
+            and len(node.args) == 1 and not node.keywords and isinstance(node.args[0], ast.Name)):
+        return f"len({node.args[0].id})"  # an array's length: the range of the input `len(xs)`
     return None
 
 

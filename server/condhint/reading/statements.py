@@ -13,6 +13,8 @@ from typing import TYPE_CHECKING, Iterable
 from condhint.expr import CONST, INPUT, Node, Span, topological
 from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.formats import BINARY64, Format, promote
+from condhint.numeric.reductions import REDUCTIONS
+from condhint.reading.arrays import array_inputs
 from condhint.reading.comments import Clauses
 from condhint.reading.dtypes import format_of_annotation
 from condhint.reading.expressions import BINOPS, Converter
@@ -324,14 +326,15 @@ class Walker:
         if root.is_int or root.span is None or conv.stmt is None:
             return
         nodes = topological(root)
-        if not any(OPERATIONS.get(n.kind) is not None and OPERATIONS[n.kind].rounds for n in nodes):
+        if not any(OPERATIONS.get(n.kind) is not None and OPERATIONS[n.kind].rounds or n.kind in REDUCTIONS
+                   for n in nodes):
             return
         ranges, filters = site_ranges(nodes, conv.ctx)
         bindings = {id(n): self._bindings[id(n)] for n in nodes if id(n) in self._bindings}
         self.sites.append(Site(root=root, scope=conv.scope, span=root.span, statement_line=conv.stmt.lineno,
                                ranges=ranges, filters=filters, float_format=root.format,
                                bindings=tuple(sorted(set(bindings.values()), key=lambda b: b.line)),
-                               bindings_by_node=bindings))
+                               bindings_by_node=bindings, arrays=array_inputs(nodes, conv.ctx)))
 
 
 def _wider(a: Node | None, b: Node | None) -> Node | None:

@@ -17,6 +17,7 @@ from condhint.config import Config
 from condhint.expr import SELECT, Node, Span, topological
 from condhint.findings import FileReport, Finding, Fix
 from condhint.numeric.analysis import Analysis
+from condhint.numeric.array_analysis import has_reductions
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
 from condhint.rewrites import codegen, dag, search, sym
 from condhint.rewrites.context import Context
@@ -149,6 +150,8 @@ def fixes_for(subject: Subject, cfg: Config, seconds: float = SECONDS_PER_FINDIN
         return []
     if analysis is not None and analysis.category == "domain-range":
         return []  # the declared range itself leaves the domain: no rewrite changes that
+    if has_reductions(topological(site.root)):
+        return []  # array code: the scalar rules and search do not apply (its rules: rewrites/array_rules.py)
     deadline = Deadline(seconds)
     nodes = topological(site.root)
     culprit = nodes[analysis.culprit] if analysis is not None and analysis.culprit is not None else None

@@ -1,0 +1,140 @@
+"""Values of a site with array inputs: samples × elements matrices, evaluated forward and differentiated.
+
+Every value is a matrix with one row per sample: an array input or elementwise result is (samples, L), a
+scalar (a scalar input, a reduction) is (samples, 1), so numpy's broadcasting is the code's own. The binary64
+backend runs numpy's own routines (pairwise summation along each contiguous row, as for a 1-D array); the
+reference runs on object arrays of mpmath numbers with exact reductions (`mpmath.fsum`).
+"""
+from __future__ import annotations
+
+from typing import Any
+
+import mpmath
+import numpy as np
+
+from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node
+from condhint.numeric.backends import F64_BACKEND, MP_BACKEND, mp_constant
+from condhint.numeric.evaluate import Deadline
+from condhint.numeric.operations import OPERATIONS
+from condhint.numeric.reductions import REDUCTIONS, evaluate_f64, evaluate_mp, vjp
+
+Values = dict[int, Any]
+_COMPARE = {"<": np.less, "<=": np.less_equal, ">": np.greater, ">=": np.greater_equal, "==": np.equal,
+            "!=": np.not_equal}
+
+
+def ddof_of(node: Node) -> int:
+    """The `ddof=` of a var/std node (kept in its name, so it is part of the structural key)."""
+    return int(node.name[5:]) if node.name and node.name.startswith("ddof=") else 0
+
+
+def to_mp(a: np.ndarray) -> np.ndarray:
+    """binary64 matrix -> object matrix of the same (exact) numbers as mpmath values."""
+    return np.frompyfunc(mpmath.mpf, 1, 1)(a).astype(object)
+
+
+def forward(nodes: list[Node], inputs: dict[str, np.ndarray], backend: Any,
+            deadline: Deadline | None = None) -> Values:
+    """Value of every node at every sample; `inputs` holds binary64 matrices by input name."""
+    mp = backend is MP_BACKEND
+    n = next((len(v) for v in inputs.values()), 1)
+    vals: Values = {}
+    with np.errstate(all="ignore"):
+        for node in nodes:
+            if deadline is not None:
+                deadline.check()
+            k = node.kind
+            if k == INPUT:
+                x = inputs[node.name]  # type: ignore[index]
+                vals[id(node)] = to_mp(x) if mp else x
+            elif k == CONST:
+                vals[id(node)] = (mp_constant(node.exact) if node.exact is not None else mpmath.mpf(node.value)) \
+                    if mp else float(node.value)  # type: ignore[arg-type]
+            elif k == COMPARE:
+                a, b = (vals[id(x)] for x in node.args)
+                vals[id(node)] = np.asarray(_COMPARE[node.name](a, b), dtype=bool)  # type: ignore[index]
+            elif k == SELECT:
+                c, a, b = (vals[id(x)] for x in node.args)
+                vals[id(node)] = backend.where(c, a, b)
+            elif k in REDUCTIONS:
+                r = REDUCTIONS[k]
+                args = [_matrix(vals[id(x)], n, backend) for x in node.args]
+                vals[id(node)] = (evaluate_mp if mp else evaluate_f64)(r, ddof_of(node), *args)
+            else:
+                fn = OPERATIONS[k]
+                args = [vals[id(x)] for x in node.args]
+                vals[id(node)] = fn.mp(*args) if mp else np.asarray(fn.f64(*args), dtype=float)
+    return vals
+
+
+def _matrix(v: Any, n: int, backend: Any) -> np.ndarray:
+    """A reduction's operand as a matrix (a constant operand is one element per sample)."""
+    if isinstance(v, np.ndarray) and v.ndim == 2:
+        return v
+    return np.full((n, 1), v, dtype=object if backend is MP_BACKEND else float)
+
+
+def reverse(nodes: list[Node], vals: Values) -> Values:
+    """binary64 adjoints ∂root/∂node, summed over the root's elements (each of the shape of its node)."""
+    root = nodes[-1]
+    adj: Values = {id(root): np.ones_like(np.asarray(vals[id(root)], dtype=float))}
+    with np.errstate(all="ignore"):
+        for node in reversed(nodes):
+            g = adj.get(id(node))
+            if g is None or node.kind in (INPUT, CONST, COMPARE):
+                continue
+            args = [vals[id(a)] for a in node.args]
+            if node.kind in REDUCTIONS:
+                parts = vjp(REDUCTIONS[node.kind], ddof_of(node), [np.asarray(a, dtype=float) for a in args],
+                            vals[id(node)], g)
+            elif node.kind == SELECT:
+                c = args[0]
+                parts = (0.0, g * np.where(c, 1.0, 0.0), g * np.where(c, 0.0, 1.0))
+            else:
+                ps = OPERATIONS[node.kind].partials(F64_BACKEND, args, vals[id(node)])
+                parts = tuple(g * p for p in ps)
+            for arg, p in zip(node.args, parts):
+                if arg.kind in (CONST, COMPARE):
+                    continue
+                p = _unbroadcast(np.asarray(p, dtype=float), np.shape(vals[id(arg)]))
+                prev = adj.get(id(arg))
+                adj[id(arg)] = p if prev is None else prev + p
+    return adj
+
+
+def _unbroadcast(p: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
+    """An adjoint contribution summed back to its operand's shape (a scalar broadcast over elements)."""
+    if p.shape == shape:
+        return p
+    if len(shape) == 2 and shape[1] == 1 and p.ndim == 2:
+        return p.sum(axis=-1, keepdims=True)
+    return np.broadcast_to(p, shape).copy() if p.size < np.prod(shape) else p
+
+
+def floats(a: Any) -> np.ndarray:
+    """A value as a binary64 matrix (mpmath values rounded; out of range: ±inf)."""
+    if isinstance(a, np.ndarray) and a.dtype == object:
+        return np.frompyfunc(float, 1, 1)(a).astype(float)
+    return np.asarray(a, dtype=float)
+
+
+def normwise_error(approx: np.ndarray, exact: np.ndarray) -> np.ndarray:
+    """Per row: max |approx − exact| / max |exact| (the max-norm relative error of a vector, of a number its
+    relative error); nan where the exact row is undefined or zero, inf where approx is not finite."""
+    a = np.atleast_2d(np.asarray(approx, dtype=float))
+    e = np.atleast_2d(exact)
+    out = np.empty(a.shape[0])
+    for i in range(a.shape[0]):
+        row = e[i]
+        if any(mpmath.isnan(v) for v in row):
+            out[i] = np.nan
+            continue
+        scale = max(abs(v) for v in row)
+        if scale == 0 or mpmath.isinf(scale):
+            out[i] = np.nan
+            continue
+        if not np.all(np.isfinite(a[i])):
+            out[i] = np.inf
+            continue
+        out[i] = float(max(abs(mpmath.mpf(float(x)) - v) for x, v in zip(a[i], row)) / scale)
+    return out
