@@ -23,8 +23,8 @@ from condhint.expr import INPUT, Node, topological
 from condhint.numeric.analysis import Analysis, rounds
 from condhint.numeric.array_sampling import (REFERENCE_SAMPLES, SCREEN_SAMPLES, array_rows, describe_row,
                                              evaluated_length)
-from condhint.numeric.array_values import floats, forward, normwise_error, reverse
-from condhint.numeric.backends import F64_BACKEND, MP_BACKEND
+from condhint.numeric.array_values import floats, forward, normwise_error, reference, reverse
+from condhint.numeric.backends import F64_BACKEND
 from condhint.numeric.evaluate import Deadline
 from condhint.numeric.formats import BINARY64
 from condhint.numeric.reductions import REDUCTIONS, depth
@@ -145,7 +145,7 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
         return res
     idx = _subset(pred, logk, inner_bad | ~fin)
     sub = {k: v[idx] for k, v in cols.items()}
-    vmp, dps = _reference(nodes, sub, deadline)
+    vmp, dps = reference(nodes, sub, deadline)
     with mpmath.workdps(dps):
         exact = vmp[id(root)]
         exact = exact if isinstance(exact, np.ndarray) else np.full((len(idx), 1), exact, dtype=object)
@@ -231,23 +231,6 @@ def _subset(pred: np.ndarray, logk: np.ndarray, bad: np.ndarray) -> np.ndarray:
         picks += list(np.argsort(-np.nan_to_num(s, nan=np.inf), kind="stable")[:2])
     picks += list(np.linspace(0, n - 1, REFERENCE_SAMPLES).astype(int))
     return np.array(sorted(set(int(p) for p in picks)))[:REFERENCE_SAMPLES + 4]
-
-
-def _reference(nodes: list[Node], cols: dict[str, np.ndarray], deadline: Deadline | None
-               ) -> tuple[dict[int, Any], int]:
-    """mpmath values at a precision two evaluations agree on (to 22 digits, normwise)."""
-    root = nodes[-1]
-    dps, prev = 50, None
-    while True:
-        with mpmath.workdps(dps):
-            vals = forward(nodes, cols, MP_BACKEND, deadline)
-            cur = vals[id(root)]
-            if prev is not None:
-                diff = normwise_error(floats(prev), cur)
-                if np.all((np.nan_to_num(diff, nan=0.0) < 1e-22)) or dps >= 400:
-                    return vals, dps
-        prev = cur
-        dps *= 2
 
 
 def _node_errors(nodes: list[Node], v64: dict[int, Any], vmp: dict[int, Any], idx: np.ndarray, dps: int

@@ -138,3 +138,40 @@ def normwise_error(approx: np.ndarray, exact: np.ndarray) -> np.ndarray:
             continue
         out[i] = float(max(abs(mpmath.mpf(float(x)) - v) for x, v in zip(a[i], row)) / scale)
     return out
+
+
+def reference(nodes: list[Node], cols: dict[str, np.ndarray], deadline: Deadline | None
+               ) -> tuple[dict[int, Any], int]:
+    """mpmath values at a precision two evaluations agree on (to 22 digits, normwise)."""
+    root = nodes[-1]
+    dps, prev = 50, None
+    while True:
+        with mpmath.workdps(dps):
+            vals = forward(nodes, cols, MP_BACKEND, deadline)
+            cur = vals[id(root)]
+            if prev is not None:
+                if _agree(prev, cur) or dps >= 400:
+                    return vals, dps
+        prev = cur
+        dps *= 2
+
+
+def mp_difference(a: Any, b: Any) -> np.ndarray:
+    """Per row, max |a − b| / max |b| of two mpmath evaluations (0 where both rows hold the same non-finite
+    values, inf where they differ in definedness)."""
+    out = []
+    for ra, rb in zip(np.atleast_2d(a), np.atleast_2d(b)):
+        odd = [not mpmath.isfinite(x) for x in (*ra, *rb)]
+        if any(odd):
+            same = all((mpmath.isnan(x) and mpmath.isnan(y)) or x == y for x, y in zip(ra, rb))
+            out.append(0.0 if same else np.inf)
+            continue
+        scale = max(abs(x) for x in rb)
+        diff = max(abs(x - y) for x, y in zip(ra, rb))
+        out.append(0.0 if diff == 0 else float(diff / scale) if scale != 0 else np.inf)
+    return np.array(out)
+
+
+def _agree(a: Any, b: Any) -> bool:
+    """Two mpmath evaluations agree to 22 digits, normwise per row (or are the same non-finite values)."""
+    return bool(np.all(mp_difference(a, b) < 1e-22))

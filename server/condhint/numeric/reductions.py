@@ -185,6 +185,11 @@ def _record_list() -> list[Reduction]:
         Reduction("amin", "the minimum", ONE, q(lambda a: np.min(a, axis=-1, keepdims=True)), _rows(min),
                   lambda *_: (), EXACT, spellings=Spellings(numpy=("min", "amin"), methods=("min",)),
                   summation="none", vjp=_vjp_extreme),
+        # What a verified fix writes for a 2-norm that must not overflow: `math.hypot(*x)` (Python ≥ 3.8 scales,
+        # ≥ 3.10 rounds within about 1 ulp: Python's documentation); not read from code (`*x` stays opaque).
+        Reduction("hypot_all", "math.hypot of the elements", ONE, q(_rows(lambda r: math.hypot(*r))),
+                  _rows(lambda r: mpmath.sqrt(mpmath.fsum(v * v for v in r))), lambda *_: (), SUM_SOURCE,
+                  summation="exact", vjp=_vjp_norm, written=False),
         Reduction("cumsum", "the cumulative sum", ONE, q(lambda a: np.cumsum(a, axis=-1)), _mp_cumsum,
                   lambda *_: (), SUM_SOURCE, spellings=Spellings(numpy=("cumsum",), methods=("cumsum",)),
                   summation="sequential", vjp=_vjp_cumsum, array_result=True),

@@ -20,6 +20,7 @@ from condhint.numeric.analysis import Analysis
 from condhint.numeric.array_analysis import has_reductions
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
 from condhint.rewrites import codegen, dag, search, sym
+from condhint.rewrites.array_rules import array_fixes
 from condhint.rewrites.context import Context
 from condhint.rewrites.recheck import FIXABLE, rechecked
 from condhint.rewrites.rules import RULES
@@ -151,7 +152,7 @@ def fixes_for(subject: Subject, cfg: Config, seconds: float = SECONDS_PER_FINDIN
     if analysis is not None and analysis.category == "domain-range":
         return []  # the declared range itself leaves the domain: no rewrite changes that
     if has_reductions(topological(site.root)):
-        return []  # array code: the scalar rules and search do not apply (its rules: rewrites/array_rules.py)
+        return array_fixes(subject, cfg)  # array code: its own rules (the scalar search does not apply)
     deadline = Deadline(seconds)
     nodes = topological(site.root)
     culprit = nodes[analysis.culprit] if analysis is not None and analysis.culprit is not None else None
