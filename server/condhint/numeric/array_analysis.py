@@ -119,7 +119,7 @@ def analyse_arrays(site: Site, cfg: Config, root: Node | None = None, deadline: 
 def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list[str],
              cols: dict[str, np.ndarray], length: int, res: Analysis, deadline: Deadline | None) -> Analysis:
     u, total, th = BINARY64.unit_roundoff, BINARY64.digits, cfg.thresholds
-    scalar_root = root.kind in REDUCTIONS and not REDUCTIONS[root.kind].array_result or _is_column(root, nodes)
+    scalar_root = _is_column(root, nodes, set(site.arrays))
     v64 = forward(nodes, cols, F64_BACKEND, deadline)
     f64 = np.asarray(v64[id(root)], dtype=float)
     f64 = f64 if f64.ndim == 2 else np.broadcast_to(f64, (SCREEN_SAMPLES, 1))
@@ -201,12 +201,12 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
     return res
 
 
-def _is_column(root: Node, nodes: list[Node]) -> bool:
+def _is_column(root: Node, nodes: list[Node], arrays: set[str]) -> bool:
     """Whether the root is one number per sample: it depends on arrays only through reductions."""
     memo: dict[int, bool] = {}
     for n in nodes:
         if n.kind == INPUT:
-            memo[id(n)] = False  # decided by the caller's arrays: inputs under no reduction are scalars
+            memo[id(n)] = n.name in arrays
         elif n.kind in REDUCTIONS:
             memo[id(n)] = REDUCTIONS[n.kind].array_result
         else:
