@@ -230,7 +230,8 @@ def _subset(pred: np.ndarray, logk: np.ndarray, bad: np.ndarray) -> np.ndarray:
     for s in (pred, logk):
         picks += list(np.argsort(-np.nan_to_num(s, nan=np.inf), kind="stable")[:2])
     picks += list(np.linspace(0, n - 1, REFERENCE_SAMPLES).astype(int))
-    return np.array(sorted(set(int(p) for p in picks)))[:REFERENCE_SAMPLES + 4]
+    chosen = list(dict.fromkeys(int(p) for p in picks))[:REFERENCE_SAMPLES + 2]  # the worst first, then a spread
+    return np.array(sorted(chosen))
 
 
 def _node_errors(nodes: list[Node], v64: dict[int, Any], vmp: dict[int, Any], idx: np.ndarray, dps: int

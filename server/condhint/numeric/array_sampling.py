@@ -18,9 +18,9 @@ import numpy as np
 from condhint.numeric.sampling import points, resolve
 from condhint.site import Interval
 
-LENGTH_CAP = 256  # elements per evaluated array
+LENGTH_CAP = 128  # elements per evaluated array
 SCREEN_SAMPLES = 48  # rows evaluated in binary64
-REFERENCE_SAMPLES = 8  # rows re-evaluated in mpmath when the screen finds something
+REFERENCE_SAMPLES = 6  # rows re-evaluated in mpmath when the screen finds something
 
 
 def evaluated_length(lengths: list[Interval | None], default: tuple[float, float]) -> tuple[int, float]:

@@ -34,6 +34,7 @@ from condhint.numeric.formats import BINARY64
 from condhint.rewrites import codegen
 from condhint.rewrites.dag import const, difference, same, square_of, substitute
 from condhint.rewrites.recheck import rechecked
+from condhint.rewrites.verify import MAX_WORSE, NOISE
 from condhint.site import Site
 
 if TYPE_CHECKING:
@@ -293,7 +294,8 @@ def judge(site: Site, cfg: Config, candidate: Node, deadline: Deadline) -> tuple
     if not ok.any():
         return None
     b, a = float(np.max(lost0[ok])), float(np.max(lost1[ok]))
-    if a <= b - 1.0 and np.all(lost1[ok] <= lost0[ok] + 0.25):
+    # losses below NOISE digits count as NOISE (a few ulps either way are not a difference), as for scalars
+    if a <= b - 1.0 and np.all(np.maximum(lost1[ok], NOISE) <= np.maximum(lost0[ok], NOISE) + MAX_WORSE):
         return b, a
     return None
 
