@@ -97,7 +97,7 @@ def _mean_of(node: Node) -> Node | None:
 
 
 def _raw_variance(node: Node, site: Site) -> Candidate | None:
-    d = difference(node)
+    d = _difference(node)
     if d is None:
         return None
     a, b = d
@@ -109,9 +109,17 @@ def _raw_variance(node: Node, site: Site) -> Candidate | None:
     return Candidate(node, Node("var", (x,)), lambda s: f"{s.np}.var({x.text})")
 
 
-def _raw_covariance(node: Node, site: Site) -> Candidate | None:
+def _difference(node: Node, left: str | None = None, right: str | None = None) -> tuple[Node, Node] | None:
+    """(a, b) when node computes a − b, with a and b of the given kinds (when given)."""
     d = difference(node)
-    if d is None or d[1].kind != "mul":
+    if d is None or (left is not None and d[0].kind != left) or (right is not None and d[1].kind != right):
+        return None
+    return d
+
+
+def _raw_covariance(node: Node, site: Site) -> Candidate | None:
+    d = _difference(node, right="mul")
+    if d is None:
         return None
     a, b = d
     prod = _mean_of(a)
@@ -197,12 +205,9 @@ def _cross(node: Node) -> tuple[Node, Node] | None:
 
 
 def _distance(node: Node, site: Site) -> Candidate | None:
-    d = difference(node)
-    if d is None or d[0].kind != "add":
-        return None
-    sq, cross = d
-    pair = _cross(cross)
-    xs = [_sum_of_squares(t) for t in sq.args]
+    d = _difference(node, left="add")
+    pair = _cross(d[1]) if d is not None else None
+    xs = [_sum_of_squares(t) for t in d[0].args] if d is not None else []
     if pair is None or any(x is None for x in xs) or not all(_plain(x) for x in pair):  # type: ignore[arg-type]
         return None
     x, y = pair
