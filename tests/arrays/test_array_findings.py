@@ -157,3 +157,19 @@ def test_a_file_dense_in_array_code_stays_within_its_budget() -> None:
     assert not [f for f in ma.report.findings if f.code == "CH001"]
     assert seconds < CFG.file_budget / 2
     assert len(ma.sites) >= 40
+
+
+def test_python_level_sums_are_sequential_sums() -> None:
+    # sum(x * x for x in xs) / n - m * m is the one-pass variance written in Python (Chan, Golub & LeVeque
+    # 1983); Python's sum adds one term after another (its own `sum` evaluates it, row by row).
+    body = ("def v(xs):\n    # condhint: xs in [1e6, 1e7]\n    m = sum(xs) / len(xs)\n"
+            "    return sum(x * x for x in xs) / len(xs) - m * m\n")
+    assert "CH101" in codes(body)
+    assert not codes("def s(xs):\n    return sum(xs) / len(xs)\n")  # a sum of positive terms
+
+
+def test_integer_arrays_are_exact() -> None:
+    body = "import numpy.typing as npt\ndef t(k: npt.NDArray[np.int64]):\n    return np.sum(k * k) - np.sum(k) ** 2\n"
+    text = "import numpy as np\n" + body
+    ma = analyse_module(text, "a.py", CFG, cache=None)
+    assert ma.report.findings == [] and all(not s.arrays for s in ma.sites)

@@ -56,6 +56,8 @@ def sample_inputs(site: Site, names: list[str], cfg: Config, seed: int, length: 
     first: np.ndarray | None = None
     for k in arrays:
         out[k] = array_rows(ranges[k].interval, cfg.default_range, n, length, rng, like=first)
+        if ranges[k].is_int:
+            out[k] = np.round(out[k])  # an array of integers
         first = out[k] if first is None else first
         bounds[k] = (float(out[k].min()), float(out[k].max()))
     return out, bounds, length, longest

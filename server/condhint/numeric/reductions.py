@@ -158,6 +158,10 @@ def _record_list() -> list[Reduction]:
         Reduction("sum", "the sum", ONE, q(lambda a: np.sum(a, axis=-1, keepdims=True)), _rows(mpmath.fsum),
                   lambda *_: (), SUM_SOURCE, spellings=Spellings(numpy=("sum",), methods=("sum",)),
                   vjp=_vjp_sum, generated={"numpy": "sum"}),
+        # Python's sum: one addition after another from 0 (Python < 3.12; 3.12 compensates sums of floats: the
+        # binary64 value is Python's own `sum` of the row, so it follows the running interpreter).
+        Reduction("pysum", "the sum", ONE, q(_rows(lambda r: sum(r.tolist()))), _rows(mpmath.fsum), lambda *_: (),
+                  SUM_SOURCE, spellings=Spellings(builtins=("sum",)), summation="sequential", vjp=_vjp_sum),
         Reduction("fsum", "math.fsum", ONE, q(_rows(math.fsum)), _rows(mpmath.fsum), lambda *_: (),
                   SUM_SOURCE, spellings=Spellings(math=("fsum",)), summation="exact", vjp=_vjp_sum),
         Reduction("mean", "the mean", ONE, q(lambda a: np.mean(a, axis=-1, keepdims=True)),

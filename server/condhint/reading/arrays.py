@@ -29,6 +29,24 @@ _MATH = module_spellings("math")
 _VECTOR_ONLY = ("dot", "inner")  # a product of matrices unless both operands are declared vectors
 
 
+_INTEGER_DTYPES = {f"{s}int{b}" for s in ("", "u") for b in (8, 16, 32, 64)} | {"integer", "int_", "intp", "uint"}
+
+
+def integer_array_annotation(e: ast.expr | None) -> bool:
+    """`npt.NDArray[np.int64]`, `np.ndarray[tuple[int], np.dtype[np.uint8]]`: an array of integers."""
+    if not isinstance(e, ast.Subscript):
+        return False
+    base = e.value.attr if isinstance(e.value, ast.Attribute) else e.value.id if isinstance(e.value, ast.Name) else ""
+    if base not in ("NDArray", "ndarray"):
+        return False
+    args = e.slice.elts if isinstance(e.slice, ast.Tuple) else [e.slice]
+    last = args[-1]
+    if isinstance(last, ast.Subscript):  # np.dtype[np.int64]
+        last = last.slice
+    name = last.attr if isinstance(last, ast.Attribute) else last.id if isinstance(last, ast.Name) else ""
+    return name in _INTEGER_DTYPES
+
+
 def length_key(name: str) -> str:
     """The declared range of an array's length is the range of the name `len(x)` (as loops read it)."""
     return f"len({name})"
@@ -38,6 +56,8 @@ def reduction_call(conv: "Converter", e: ast.Call) -> "Node | None | object":
     """The reduction node a call stands for, an opaque input, or NOT_A_REDUCTION."""
     names = conv.w.names
     func = e.func
+    if isinstance(func, ast.Name) and func.id == "sum" and "sum" not in names.shadowed and "sum" not in conv.env:
+        return _python_sum(conv, e)
     if not isinstance(func, ast.Attribute):
         return NOT_A_REDUCTION
     module = names.module_of_call(func)
@@ -69,6 +89,40 @@ def reduction_call(conv: "Converter", e: ast.Call) -> "Node | None | object":
     if func.attr in _VECTOR_ONLY and not all(_declared_vector(n, conv.ctx) for n in args):
         return conv.opaque(e)
     return _reduction(conv, rid, args, e, ddof)
+
+
+def _python_sum(conv: "Converter", e: ast.Call) -> "Node | object":
+    """Python's `sum(xs)` of a sequence the code names, or `sum(f(v) for v in xs)`: a sequential sum of the
+    elements (of f applied to each element); other generators stay as they were."""
+    if len(e.args) != 1 or e.keywords:
+        return NOT_A_REDUCTION
+    arg_expr = e.args[0]
+    if isinstance(arg_expr, (ast.GeneratorExp, ast.ListComp)):
+        arg = _elementwise(conv, arg_expr)
+    elif isinstance(arg_expr, (ast.Name, ast.Attribute, ast.Subscript)):
+        arg = conv.convert(arg_expr)
+    else:
+        return NOT_A_REDUCTION
+    if arg is None or arg.is_int:
+        return NOT_A_REDUCTION
+    return _reduction(conv, "pysum", (arg,), e, 0)
+
+
+def _elementwise(conv: "Converter", g: ast.GeneratorExp | ast.ListComp) -> Node | None:
+    """`f(v) for v in xs` (one plain loop over a named sequence, no condition) as f applied to xs elementwise."""
+    if len(g.generators) != 1:
+        return None
+    gen = g.generators[0]
+    if gen.ifs or gen.is_async or not isinstance(gen.target, ast.Name) or \
+            not isinstance(gen.iter, (ast.Name, ast.Attribute)):
+        return None
+    xs = conv.convert(gen.iter)
+    if xs is None or xs.kind != INPUT:
+        return None
+    inner = type(conv)(conv.w, {**conv.env, gen.target.id: xs}, conv.ctx, conv.scope, conv.stmt)
+    node = inner.convert(g.elt)
+    conv.scanned.add(id(g))
+    return node
 
 
 def matmul(conv: "Converter", e: ast.BinOp, a: Node, b: Node) -> Node | None:

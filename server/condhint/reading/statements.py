@@ -14,7 +14,7 @@ from condhint.expr import CONST, INPUT, Node, Span, topological
 from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.formats import BINARY64, Format, promote
 from condhint.numeric.reductions import REDUCTIONS
-from condhint.reading.arrays import array_inputs
+from condhint.reading.arrays import array_inputs, integer_array_annotation
 from condhint.reading.comments import Clauses
 from condhint.reading.dtypes import format_of_annotation
 from condhint.reading.expressions import BINOPS, Converter
@@ -116,7 +116,8 @@ class Walker:
         params: dict[str, Node] = {}
         args = fn.args
         for a in [*args.posonlyargs, *args.args, *args.kwonlyargs]:
-            is_int = isinstance(a.annotation, ast.Name) and a.annotation.id == "int"
+            is_int = isinstance(a.annotation, ast.Name) and a.annotation.id == "int" or \
+                integer_array_annotation(a.annotation)  # `npt.NDArray[np.int64]`: exact integers
             params[a.arg] = self.input(a.arg, is_int, fmt=format_of_annotation(a.annotation, self.names))
         for a in (args.vararg, args.kwarg):
             if a is not None:
