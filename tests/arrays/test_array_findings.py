@@ -173,3 +173,10 @@ def test_integer_arrays_are_exact() -> None:
     text = "import numpy as np\n" + body
     ma = analyse_module(text, "a.py", CFG, cache=None)
     assert ma.report.findings == [] and all(not s.arrays for s in ma.sites)
+
+
+def test_explain_declines_array_code_with_a_reason() -> None:
+    from condhint.review.explain import NothingThere, explain
+    text = "import numpy as np\ndef v(x):\n    return np.mean(x * x) - np.mean(x) ** 2\n"
+    with pytest.raises(NothingThere, match="array code"):
+        explain(text, "a.py", 3, None, CFG)
