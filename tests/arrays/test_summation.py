@@ -81,7 +81,7 @@ def test_one_pass_variance_fails_and_two_pass_does_not() -> None:
         rel2 = abs(float((mpmath.mpf(float(np.var(x))) - exact) / exact))
         two = np.mean((x - np.mean(x)) ** 2)
         rel3 = abs(float((mpmath.mpf(float(two)) - exact) / exact))
-    assert rel1 > 1e-3  # (in fact ≈ 1: every digit lost)
+    assert rel1 > 0.5  # every digit lost (here the one-pass value is 0.0 against an exact 0.33)
     assert rel2 < 1e-12 and rel3 < 1e-12
     # condhint's own evaluation of the var record is numpy's np.var, its reference the exact two-pass value
     with mpmath.workdps(60):

@@ -116,7 +116,10 @@ def analyse_arrays(site: Site, cfg: Config, root: Node | None = None, deadline: 
     if any(n.format is not BINARY64 for n in nodes):
         return base  # reductions in reduced precision are not modelled yet
     with np.errstate(all="ignore"):
-        res = _analyse(site, cfg, root, nodes, names, cols, length, base, deadline)
+        try:
+            res = _analyse(site, cfg, root, nodes, names, cols, length, base, deadline)
+        except (TypeError, IndexError, KeyError) as exc:  # shapes the code combines in a way not modelled
+            raise ValueError(f"array code not modelled ({type(exc).__name__}: {exc})") from exc
     if res.category == "overflow" and any(v is None for v in site.arrays.values()) and \
             _finite_when_short(site, cfg, root, nodes, names, seed):
         # Only at the longer end of an assumed length (a product of many terms): like any finding toward the
