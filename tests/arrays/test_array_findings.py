@@ -180,3 +180,12 @@ def test_explain_declines_array_code_with_a_reason() -> None:
     text = "import numpy as np\ndef v(x):\n    return np.mean(x * x) - np.mean(x) ** 2\n"
     with pytest.raises(NothingThere, match="array code"):
         explain(text, "a.py", 3, None, CFG)
+
+
+def test_the_documented_example_reports_the_one_pass_variance() -> None:
+    # docs/configuration.md, section "Arrays": the example must read (literals only) and report what it says.
+    from pathlib import Path
+    doc = (Path(__file__).resolve().parents[2] / "docs" / "configuration.md").read_text(encoding="utf-8")
+    block = doc.split("## Arrays", 1)[1].split("```python\n", 1)[1].split("```", 1)[0]
+    (f,) = analyse_module("import numpy as np\n" + block, "doc.py", CFG, cache=None).report.findings
+    assert f.code == "CH101" and f.expression == "np.mean(x * x) - np.mean(x) ** 2"
