@@ -189,3 +189,17 @@ def test_the_documented_example_reports_the_one_pass_variance() -> None:
     block = doc.split("## Arrays", 1)[1].split("```python\n", 1)[1].split("```", 1)[0]
     (f,) = analyse_module("import numpy as np\n" + block, "doc.py", CFG, cache=None).report.findings
     assert f.code == "CH101" and f.expression == "np.mean(x * x) - np.mean(x) ** 2"
+
+
+def test_raw_third_moment_is_found_without_a_fix() -> None:
+    # E[(x − m)³] from raw moments: mean(x³) − 3m·mean(x²) + 2m³ cancels like the raw variance, more so
+    # (Chan, Golub & LeVeque 1983 for the variance; the same expansion). No rule rewrites it: no fix is offered.
+    body = ("def third(x):\n    # condhint: x in [1e3, 1e4]\n    m = np.mean(x)\n"
+            "    return np.mean(x ** 3) - 3 * m * np.mean(x ** 2) + 2 * m ** 3\n")
+    assert "CH101" in codes(body)
+
+
+def test_array_sites_keep_to_the_expression_budget() -> None:
+    text = "import numpy as np\ndef v(x):\n    return np.mean(x * x) - np.mean(x) ** 2\n"
+    report = analyse_module(text, "a.py", Config(kappa_formula=False, site_budget=0.0), cache=None).report
+    assert [f.code for f in report.findings] == ["CH001"] and "time budget" in report.findings[0].message
