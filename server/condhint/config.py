@@ -46,6 +46,8 @@ class Config:
     # Inputs without a declared range are sampled on [low, high] (log-uniformly): magnitudes from a
     # millionth to a million cover ordinary quantities in ordinary units (see docs/configuration.md).
     default_range: tuple[float, float] = (1e-6, 1e6)
+    # Arrays without a declared length (`len(x) in [lo, hi]`) have lengths in this range (numeric/array_sampling.py).
+    array_length: tuple[float, float] = (2.0, 1000.0)
     samples: int = 256  # binary64 samples per site
     reference_samples: int = 40  # of which this many are re-evaluated in mpmath when a site looks suspicious
     # The format of values whose type the code does not show (parameters, results of unknown calls): "float64"
@@ -105,13 +107,13 @@ def _check(cfg: Config, key: str, value: Any) -> Config:
         if not 0 <= vals["info"] <= vals["warning"] <= vals["error"]:
             raise ValueError("need 0 <= info <= warning <= error")
         return replace(cfg, thresholds=Thresholds(**vals))
-    if key == "default_range":
+    if key in ("default_range", "array_length"):
         if not isinstance(value, (list, tuple)) or len(value) != 2:
             raise ValueError("expected [low, high]")
         lo, hi = _number(value[0]), _number(value[1])
-        if not lo < hi:
-            raise ValueError("need low < high")
-        return replace(cfg, default_range=(lo, hi))
+        if not lo < hi or (key == "array_length" and lo < 1):
+            raise ValueError("need low < high" + (" and low >= 1" if key == "array_length" else ""))
+        return replace(cfg, **{key: (lo, hi)})
     if key in ("samples", "reference_samples", "max_site_nodes", "debounce_ms"):
         if isinstance(value, bool) or not isinstance(value, int):
             raise ValueError("expected a whole number")

@@ -18,8 +18,9 @@ from condhint.config import Config
 from condhint.expr import INPUT, Node, Span, topological
 from condhint.findings import SEVERITY_RANK, FileReport, Finding
 from condhint.loop_findings import loop_findings
-from condhint.numeric.analysis import Analysis, analyse
+from condhint.numeric.analysis import Analysis
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
+from condhint.numeric.site_analysis import analyse_site_values
 from condhint.reading.comments import Clauses
 from condhint.reading.imported import dependency_stamp
 from condhint.reading.module_index import ModuleIndex, Unit, read_module
@@ -76,7 +77,8 @@ class AnalysisCache(Lru[Analysis]):
                         for k, v in site.ranges.items())
         filters = [(f.condition.key(), f.holds) for f in site.filters]
         settings = (cfg.thresholds, cfg.default_range, cfg.samples, cfg.reference_samples, cfg.float_format)
-        return f"{root_key}|{ranges}|{filters}|{settings}"
+        arrays = f"|{sorted((k, repr(v)) for k, v in site.arrays.items())}{cfg.array_length}" if site.arrays else ""
+        return f"{root_key}|{ranges}|{filters}|{settings}{arrays}"
 
 
 DEFAULT_CACHE = AnalysisCache(capacity=8000)  # about 2.5 KiB an entry
@@ -203,7 +205,7 @@ def _analysis_of(site: Site, cfg: Config, cache: AnalysisCache | None, compute: 
             return hit
     if not compute:
         return None
-    result = analyse(site, cfg, deadline=Deadline(cfg.site_budget))
+    result = analyse_site_values(site, cfg, deadline=Deadline(cfg.site_budget))
     if cache is not None:
         cache.put(key, result)
     return result

@@ -14,9 +14,10 @@ from condhint.expr import Node, topological
 from condhint.findings import Finding
 from condhint.messages import counted_in, num, pct
 from condhint.numeric.formats import format_named
-from condhint.numeric.analysis import Analysis, analyse
+from condhint.numeric.analysis import Analysis
 from condhint.numeric.evaluate import Deadline
 from condhint.numeric.operations import OPERATIONS
+from condhint.numeric.site_analysis import analyse_site_values
 from condhint.site import Site
 
 _SOURCES = {
@@ -169,7 +170,7 @@ def analyse_node(site: Site, node: Node, cfg: Config, cache: AnalysisCache | Non
     hit = cache.get(key) if cache is not None else None
     if hit is not None:
         return hit
-    result = analyse(site, cfg, root=node, deadline=Deadline(cfg.site_budget))
+    result = analyse_site_values(site, cfg, root=node, deadline=Deadline(cfg.site_budget))
     if cache is not None:
         cache.put(key, result)
     return result

@@ -9,6 +9,7 @@ from condhint.expr import Node
 from condhint.numeric.formats import BINARY64, Format
 from condhint.numeric.analysis import Analysis
 from condhint.numeric.operations import OPERATIONS
+from condhint.numeric.reductions import REDUCTIONS
 from condhint.site import Site
 
 
@@ -109,9 +110,10 @@ def inherent_message(m: Facts) -> str:
 def overflow_message(m: Facts) -> str:
     a = m.analysis
     what = ("underflows to 0" if a.underflow else "overflows to inf") + in_format(m.flagged.format)
+    # a reduction that overflows (the sum under a softmax) makes the ratios to it 0 (issue 14)
+    returns = "0, inf or nan" if a.underflow or m.flagged.kind in REDUCTIONS else "inf or nan"
     return (f"{code(m.flagged.text)} {what} at {where(a.worst_at)} although the result of "
-            f"{code(m.site.root.text)} is an ordinary number there, so the code returns "
-            f"{'0, inf or nan' if a.underflow else 'inf or nan'} instead.")
+            f"{code(m.site.root.text)} is an ordinary number there, so the code returns {returns} instead.")
 
 
 def domain_message(m: Facts) -> str:

@@ -90,3 +90,4 @@ class Site:
     # operations inlined from the module's own functions: id(node) -> the chain of calls it came through
     # (`reading.inline.Call` records: function, call line, def line)
     inlined: dict[int, tuple[Any, ...]] = field(default_factory=dict, repr=False)
+    arrays: dict[str, Interval | None] = field(default_factory=dict)  # array inputs -> declared length (None: default)

@@ -7,6 +7,7 @@ from typing import TYPE_CHECKING
 from condhint.expr import CONST, SELECT, Node
 from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.formats import BINARY64, Format
+from condhint.reading.arrays import NOT_A_REDUCTION, reduction_call
 from condhint.reading.dtypes import cast_target, dtype_keyword
 from condhint.reading.inline import inline_call
 from condhint.reading.integers import in_context_object, makes_object, returns_int
@@ -22,6 +23,9 @@ def convert_call(conv: "Converter", e: ast.Call) -> Node | None:
     names, source = conv.w.names, conv.w.source
     if names.not_binary64(e):
         return None  # a sympy or mpmath object: the expression is not binary64 arithmetic
+    reduced = reduction_call(conv, e)  # arrays: np.sum(x), x.mean(), np.linalg.norm(x)… (reading/arrays.py)
+    if reduced is not NOT_A_REDUCTION:
+        return reduced  # type: ignore[return-value]
     if names.makes_number(e):
         exact = literal_number(e.args[0]) or ""
         span = source.span(e)

@@ -11,6 +11,7 @@ from typing import TYPE_CHECKING
 
 from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, Span
 from condhint.numeric.formats import BINARY64, Format
+from condhint.reading.arrays import matmul
 from condhint.reading.calls import convert_call
 from condhint.reading.dtypes import format_limit, in_format, result_format
 from condhint.reading.integers import in_context_object
@@ -186,6 +187,8 @@ class Converter:
         a, b = self.convert(e.left), self.convert(e.right)
         if a is None or b is None:
             return None
+        if isinstance(e.op, ast.MatMult) and (dot := matmul(self, e, a, b)) is not None:
+            return dot  # `x @ y` of declared vectors (reading/arrays.py)
         if isinstance(e.op, _OPAQUE_BINOPS):
             return self.leaf(e, a.is_int and b.is_int)
         op = BINOPS[type(e.op)]

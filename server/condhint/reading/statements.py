@@ -13,6 +13,8 @@ from typing import TYPE_CHECKING, Iterable
 from condhint.expr import CONST, INPUT, Node, Span, topological
 from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.formats import BINARY64, Format, promote
+from condhint.numeric.reductions import REDUCTIONS
+from condhint.reading.arrays import array_inputs, integer_array_annotation
 from condhint.reading.comments import Clauses
 from condhint.reading.dtypes import format_of_annotation
 from condhint.reading.integers import int_annotation, int_default, used_as_integers
@@ -139,7 +141,8 @@ class Walker:
         defaults.update((a.arg, d) for a, d in zip(args.kwonlyargs, args.kw_defaults) if d is not None)
         counted = used_as_integers(fn.body if isinstance(fn.body, list) else [ast.Expr(fn.body)])
         for a in [*positional, *args.kwonlyargs]:
-            is_int = int_annotation(a.annotation) or int_default(defaults.get(a.arg)) or a.arg in counted
+            is_int = int_annotation(a.annotation) or int_default(defaults.get(a.arg)) or a.arg in counted \
+                or integer_array_annotation(a.annotation)  # `npt.NDArray[np.int64]`: exact integers
             params[a.arg] = self.input(a.arg, is_int, fmt=format_of_annotation(a.annotation, self.names))
         for a in (args.vararg, args.kwarg):
             if a is not None:
@@ -360,7 +363,8 @@ class Walker:
         if root.is_int or root.span is None or conv.stmt is None:
             return
         nodes = topological(root)
-        if not any(OPERATIONS.get(n.kind) is not None and OPERATIONS[n.kind].rounds for n in nodes):
+        if not any(OPERATIONS.get(n.kind) is not None and OPERATIONS[n.kind].rounds or n.kind in REDUCTIONS
+                   for n in nodes):
             return
         ranges, filters = site_ranges(nodes, conv.ctx)
         bindings = {id(n): self._bindings[id(n)] for n in nodes if id(n) in self._bindings}
@@ -368,7 +372,7 @@ class Walker:
         self.sites.append(Site(root=root, scope=conv.scope, span=root.span, statement_line=conv.stmt.lineno,
                                ranges=ranges, filters=filters, float_format=root.format,
                                bindings=tuple(sorted(set(bindings.values()), key=lambda b: b.line)),
-                               bindings_by_node=bindings, inlined=inlined))
+                               bindings_by_node=bindings, inlined=inlined, arrays=array_inputs(nodes, conv.ctx)))
 
 
 def _wider(a: Node | None, b: Node | None) -> Node | None:

@@ -15,10 +15,11 @@ import numpy as np
 
 from condhint.config import Config
 from condhint.engine import ModuleAnalysis, analyse_module
-from condhint.expr import Span
+from condhint.expr import Span, topological
 from condhint.findings import Finding, Fix
 from condhint.messages import num
 from condhint.numeric.analysis import Analysis, analyse
+from condhint.numeric.array_analysis import has_reductions
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
 from condhint.numeric.formats import BINARY64
 from condhint.numeric.operations import OPERATIONS
@@ -218,6 +219,9 @@ def explain(text: str, path: str, line: int, col: int | None, cfg: Config, tries
     if ma.report.status != "ok":
         raise NothingThere(ma.report.message or "the file could not be analysed")
     site, finding = locate(ma, line, col)
+    if has_reductions(topological(site.root)):  # arrays (issue 14): no one-input sweep describes them yet
+        raise NothingThere("array code (reductions) is not explained yet; `check --format json` and hover give "
+                           "its figures")
     a = analyse(site, cfg, deadline=Deadline(cfg.site_budget * 4), keep_points=True)
     formula, formula_note = _formula(site, a, cfg, finding)
     names = input_names(site.root)

@@ -17,8 +17,10 @@ from condhint.config import Config
 from condhint.expr import SELECT, Node, Span, topological
 from condhint.findings import FileReport, Finding, Fix
 from condhint.numeric.analysis import Analysis
+from condhint.numeric.array_analysis import has_reductions
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
 from condhint.rewrites import codegen, dag, search, sym
+from condhint.rewrites.array_rules import array_fixes
 from condhint.rewrites.context import Context
 from condhint.rewrites.recheck import FIXABLE, rechecked
 from condhint.rewrites.rules import RULES
@@ -149,6 +151,8 @@ def fixes_for(subject: Subject, cfg: Config, seconds: float = SECONDS_PER_FINDIN
         return []
     if analysis is not None and analysis.category == "domain-range":
         return []  # the declared range itself leaves the domain: no rewrite changes that
+    if has_reductions(topological(site.root)):
+        return array_fixes(subject, cfg)  # array code: its own rules (the scalar search does not apply)
     deadline = Deadline(seconds)
     nodes = topological(site.root)
     culprit = nodes[analysis.culprit] if analysis is not None and analysis.culprit is not None else None
