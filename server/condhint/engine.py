@@ -252,7 +252,7 @@ def analyse_unit(index: ModuleIndex, unit: Unit, key: str, path: str, cfg: Confi
                                          site.scope, site.root.text))
             continue
         out.analyses[id(site)] = a
-        f = finding_for(site, a, cfg, path, origin=f"{key}#{number}")
+        f = finding_for(site, a, cfg, path, origin=f"{key}#{number}", symbolic=index.symbolic_numbers)
         if f is None:
             continue
         k = (f.span.line, f.span.col, f.span.end_line, f.span.end_col, f.code)

@@ -10,10 +10,15 @@ from condhint.numeric.analysis import Analysis
 from condhint.site import Site
 
 
-def finding_for(site: Site, a: Analysis, cfg: Config, path: str, origin: str = "") -> Finding | None:
+def finding_for(site: Site, a: Analysis, cfg: Config, path: str, origin: str = "", symbolic: bool = False
+                ) -> Finding | None:
     """The finding a site's analysis reports, or None; `origin` is the link back to the site (see
-    `engine.ModuleAnalysis.site_of`)."""
+    `engine.ModuleAnalysis.site_of`). In a module that works with symbolic or multiprecision numbers
+    (`symbolic`), only expressions whose every input has a declared range are reported: the others are most
+    likely not binary64 numbers at all."""
     if a.category is None or a.digits is None or _integer_bookkeeping(site, a):
+        return None
+    if symbolic and any(src != "comment" for src in a.sources.values()):
         return None
     if a.category == "overflow" and not _has_inputs(site):
         return None  # `1e300 * 1e300`: an infinity made on purpose

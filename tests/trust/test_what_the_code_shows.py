@@ -204,3 +204,12 @@ def test_powers_of_integer_bookkeeping_and_angle_conversions() -> None:
     assert codes("def f(nbits):\n    return 2 ** nbits\n") == []
     (site,) = analysed("import math\ndef f(x):\n    c = math.cos(math.radians(15))\n    return (1 - c) * x\n").sites
     assert set(site.ranges) == {"x"}  # no input stands for math.radians(15)
+
+
+def test_modules_of_symbolic_numbers_report_only_declared_expressions() -> None:
+    # in a module importing sympy, `x` may be a Symbol and `S.Half` a Rational: nothing is reported on guesses
+    body = "def f(x, y):{decl}\n    return (x + y * 1.0) - x\n"
+    assert codes("import sympy\n" + body.format(decl="")) == []
+    assert codes("import sympy\n" + body.format(decl="  # condhint: 1e6 <= x <= 1e7, 1e-6 <= y <= 1e-5")) == \
+        ["CH101"]
+    assert codes(body.format(decl="")) == ["CH101"]

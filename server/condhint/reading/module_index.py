@@ -25,6 +25,7 @@ from condhint.reading.source import Source
 from condhint.reading.targets import DEFS
 
 MODULE = "<module>"
+_RELATIVE = re.compile(r"^\s*from\s+\.", re.M)
 _REDUCED = re.compile(r"float32|float16|bfloat16|single|half|['\"]f[24]['\"]")
 _TOP_LEVEL_DEF = re.compile(r"^(?:@|def\s|async\s+def\s|class\s)")
 _NEWLINE = re.compile(r"\r\n|\r|\n")
@@ -114,6 +115,15 @@ class ModuleIndex:
             return [s for s in self.tree.body if not isinstance(s, DEFS)]
         stmt = self.statement(unit)
         return [stmt] if stmt is not None else []
+
+    @property
+    def symbolic_numbers(self) -> bool:
+        """Whether the module works with symbolic or multiprecision numbers: it imports sympy or mpmath, or it is
+        a module of those packages themselves (relative imports from inside them). Its values are rarely binary64."""
+        if self.names.uses_sympy or self.names.uses_mpmath:
+            return True
+        parts = set(re.split(r"[\\/]", self.path)[:-1])
+        return bool(parts & {"sympy", "mpmath"}) and bool(_RELATIVE.search(self.text))
 
     @cached_property
     def mentions_reduced_formats(self) -> bool:
