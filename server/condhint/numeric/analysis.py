@@ -339,8 +339,8 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
         res.fraction = max(frac_formula, 1.0 / n)
         _worst(res, sub, w, predmp, meas, kmp)
         _attribute(res, nodes, steps, terms, rounding, u, w)
-    elif np.any(valid & (logk >= th.info)):
-        w = int(np.argmax(np.where(valid, logk, -np.inf)))
+    elif np.any(valid & (logk >= th.info) & np.isfinite(kmp)):  # κ undefined (sqrt at 0): no sensitivity figure
+        w = int(np.argmax(np.where(valid & np.isfinite(kmp), logk, -np.inf)))
         res.category, res.digits = "inherent", float(min(logk[w], total))
         res.ordinary_digits = float(np.max(np.minimum(logk, total)[valid & ordinary], initial=0.0))
         res.fraction = max(frac_kappa, 1.0 / n)
