@@ -30,11 +30,16 @@ def _by_digits(a: Analysis, cfg: Config) -> str | None:
     return severity
 
 
+NARROW = 0.05  # a loss on under 5% of guessed ranges needs inputs the guess cannot vouch for
+
+
 def only_at_assumed_extremes(a: Analysis, cfg: Config) -> bool:
-    """A loss that shows only toward the ends of assumed (guessed) ranges and on under half of them: the code
-    may never see those magnitudes."""
-    return bool(a.assumed) and a.ordinary_digits is not None and a.ordinary_digits < cfg.thresholds.warning \
-        and (a.fraction or 0.0) < 0.5
+    """A loss that shows only toward the ends of assumed (guessed) ranges and on under half of them, or only in a
+    narrow band of them (under 5% of the samples): the code may never see those inputs."""
+    if not a.assumed or a.ordinary_digits is None:
+        return False
+    share = a.fraction or 0.0
+    return (a.ordinary_digits < cfg.thresholds.warning and share < 0.5) or share < NARROW
 
 
 def _on_enough_of_the_range(a: Analysis, cfg: Config) -> str | None:

@@ -130,5 +130,6 @@ def domain_message(m: Facts) -> str:
 def declare_note(a: Analysis) -> str:
     """What to declare when a loss shows only at magnitudes the assumed range guessed."""
     names = ", ".join(f"`{k}`" for k in a.assumed)
-    return (f" This shows only toward the ends of the range assumed for {names} (no range is declared): "
-            "declare the real range in a `# condhint:` comment to check it.")
+    return (f" This shows only at values of {names} that the guessed range reaches but the code may never see "
+            "(at its ends, or in a narrow part of it): declare the real range in a `# condhint:` comment to check "
+            "it.")
