@@ -92,3 +92,24 @@ def current_nvim() -> str | None:
         return None
     binary = Path(spec.origin).parent / "install" / "bin" / "nvim"
     return str(binary) if binary.is_file() and os.access(binary, os.X_OK) else None
+
+
+def code_cell(*lines: str) -> dict:
+    return {"cell_type": "code", "metadata": {}, "outputs": [], "execution_count": None, "source": list(lines)}
+
+
+def notebook(*extra_cells: dict) -> dict:
+    """The browser tests' notebook: an import with magics and a shell escape, a markdown cell, a cell magic, and
+    the square-root gap (a CH101), then `extra_cells`."""
+    return {
+        "cells": [
+            code_cell("import math\n", "%timeit math.sqrt(2.0)\n", "!ls"),
+            {"cell_type": "markdown", "metadata": {}, "source": ["The gap between neighbouring square roots"]},
+            code_cell("%%time\n", "scale = 2.0"),
+            code_cell("def gap(x):\n", "    return math.sqrt(x + 1) - math.sqrt(x)"),
+            *extra_cells,
+        ],
+        "metadata": {"kernelspec": {"display_name": "Python 3", "language": "python", "name": "python3"},
+                     "language_info": {"name": "python"}},
+        "nbformat": 4, "nbformat_minor": 5,
+    }

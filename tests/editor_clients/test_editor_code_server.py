@@ -16,7 +16,7 @@ import pytest
 
 from browser_support import (chromium_page, free_port, playwright_api, process_group, record_timing, screenshot,
                              server_env, wait_http)
-from editor_support import CLIENTS, require, run
+from editor_support import CLIENTS, code_cell, notebook, require, run
 
 pytestmark = pytest.mark.slow
 
@@ -38,22 +38,7 @@ def growth(x):  # condhint: 1e-8 <= x <= 1e-2
 GAP_OPERATOR = "5:29"  # line:column of the `-` in gap()
 GROWTH_OPERATOR = "9:24"  # and in growth()
 QUICK_FIX_WAIT = 150.0  # s: the rewrite search runs in the background and may take a while on a loaded machine
-NOTEBOOK = {
-    "cells": [
-        {"cell_type": "code", "metadata": {}, "outputs": [], "execution_count": None,
-         "source": ["import math\n", "%timeit math.sqrt(2.0)\n", "!ls"]},
-        {"cell_type": "markdown", "metadata": {}, "source": ["The gap between neighbouring square roots"]},
-        {"cell_type": "code", "metadata": {}, "outputs": [], "execution_count": None,
-         "source": ["%%time\n", "scale = 2.0"]},
-        {"cell_type": "code", "metadata": {}, "outputs": [], "execution_count": None,
-         "source": ["def gap(x):\n", "    return math.sqrt(x + 1) - math.sqrt(x)"]},
-        {"cell_type": "code", "metadata": {}, "outputs": [], "execution_count": None,
-         "source": ["def growth(x):  # condhint: 1e-8 <= x <= 1e-2\n", "    return math.exp(x) - 1.0"]},
-    ],
-    "metadata": {"kernelspec": {"display_name": "Python 3", "language": "python", "name": "python3"},
-                 "language_info": {"name": "python"}},
-    "nbformat": 4, "nbformat_minor": 5,
-}
+NOTEBOOK = notebook(code_cell("def growth(x):  # condhint: 1e-8 <= x <= 1e-2\n", "    return math.exp(x) - 1.0"))
 BASE_SETTINGS = {
     "condhint.server.command": [sys.executable, "-m", "condhint", "serve"],
     "condhint.debounceMs": 20,

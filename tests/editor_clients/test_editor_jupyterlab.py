@@ -6,7 +6,6 @@ from __future__ import annotations
 import json
 import os
 import re
-import subprocess
 import sys
 import time
 from importlib.metadata import entry_points
@@ -17,23 +16,10 @@ import pytest
 
 from browser_support import (chromium_page, free_port, process_group, record_timing, screenshot, server_env,
                              wait_http)
-from editor_support import REPO, require, run
+from editor_support import REPO, notebook, require, run
 
 WAIT = 60_000  # ms
-NOTEBOOK = {
-    "cells": [
-        {"cell_type": "code", "metadata": {}, "outputs": [], "execution_count": None,
-         "source": ["import math\n", "%timeit math.sqrt(2.0)\n", "!ls"]},
-        {"cell_type": "markdown", "metadata": {}, "source": ["The gap between neighbouring square roots"]},
-        {"cell_type": "code", "metadata": {}, "outputs": [], "execution_count": None,
-         "source": ["%%time\n", "scale = 2.0"]},
-        {"cell_type": "code", "metadata": {}, "outputs": [], "execution_count": None,
-         "source": ["def gap(x):\n", "    return math.sqrt(x + 1) - math.sqrt(x)"]},
-    ],
-    "metadata": {"kernelspec": {"display_name": "Python 3", "language": "python", "name": "python3"},
-                 "language_info": {"name": "python"}},
-    "nbformat": 4, "nbformat_minor": 5,
-}
+NOTEBOOK = notebook()
 ENTRY_POINT = "condhint.lsp.jupyter:spec"
 
 
