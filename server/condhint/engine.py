@@ -7,6 +7,7 @@ they call, the module context, the settings). Below that, `AnalysisCache` analys
 """
 from __future__ import annotations
 
+import logging
 import threading
 import time
 from collections import OrderedDict
@@ -32,6 +33,7 @@ from condhint.site_findings import finding_for, not_analysed
 from condhint.symbolic import kappa_formula_text
 
 K, V = TypeVar("K"), TypeVar("V")
+log = logging.getLogger(__name__)
 
 
 class Abandoned(Exception):
@@ -250,6 +252,12 @@ def analyse_unit(index: ModuleIndex, unit: Unit, key: str, path: str, cfg: Confi
         except (RecursionError, MemoryError, OverflowError, ValueError, ZeroDivisionError) as exc:
             problems.append(not_analysed(path, site.span, f"not analysed: {type(exc).__name__}: {exc}",
                                          site.scope, site.root.text))
+            continue
+        except (KeyError, IndexError, TypeError, AttributeError) as exc:  # a bug of ours: say so, go on
+            log.exception("internal error analysing %s:%d", path, site.span.line)
+            problems.append(not_analysed(path, site.span, f"not analysed: an internal error of condhint "
+                                         f"({type(exc).__name__}: {exc}); please report it", site.scope,
+                                         site.root.text))
             continue
         out.analyses[id(site)] = a
         f = finding_for(site, a, cfg, path, origin=f"{key}#{number}", symbolic=index.symbolic_numbers)

@@ -213,3 +213,11 @@ def test_modules_of_symbolic_numbers_report_only_declared_expressions() -> None:
     assert codes("import sympy\n" + body.format(decl="  # condhint: 1e6 <= x <= 1e7, 1e-6 <= y <= 1e-5")) == \
         ["CH101"]
     assert codes(body.format(decl="")) == ["CH101"]
+
+
+def test_a_guard_on_a_reduction_does_not_stop_the_analysis() -> None:
+    # found on real code (scipy): a branch on np.min(x) holds a scalar expression; the guard cannot filter its
+    # samples and the expression is analysed as if unguarded (log(1 + y) loses digits for small y: Goldberg 1991)
+    src = "import numpy as np\ndef f(x, y):  # condhint: 1e-9 <= y <= 1e-6\n    if np.min(x) > 0.5:\n" \
+          "        return np.log(1 + y)\n    return y\n"
+    assert codes(src) == ["CH101"]

@@ -5,10 +5,11 @@ from __future__ import annotations
 import numpy as np
 
 from condhint.config import Config
-from condhint.expr import INPUT, Node, topological
+from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, topological
 from condhint.numeric.backends import F64_BACKEND
 from condhint.numeric.evaluate import forward
 from condhint.numeric.formats import BINARY64
+from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.sampling import sample
 from condhint.site import InputRange, Interval, Site
 
@@ -19,13 +20,18 @@ GUESSED = ("default", "parameter default")  # range sources that are guesses: th
 
 
 
+def scalar(node: Node) -> bool:
+    """A node the scalar evaluation knows (not a reduction of an array)."""
+    return node.kind in (INPUT, CONST, COMPARE, SELECT) or node.kind in OPERATIONS
+
+
 def keep_where_guards_hold(site: Site, cols: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
     """Drop the samples where a guard or branch on a computed value says the code does not run."""
     n = len(next(iter(cols.values()))) if cols else 0
     for flt in site.filters:
         cnodes = topological(flt.condition)
-        if not {x.name for x in cnodes if x.kind == INPUT} <= set(cols):
-            continue
+        if not {x.name for x in cnodes if x.kind == INPUT} <= set(cols) or not all(scalar(x) for x in cnodes):
+            continue  # a condition on other inputs, or on arrays (a reduction): it cannot filter scalar samples
         with np.errstate(all="ignore"):
             cv = forward(cnodes, cols, F64_BACKEND, n)[id(flt.condition)]
         keep = np.asarray(cv, dtype=bool) == flt.holds
