@@ -20,11 +20,11 @@ class Unsupported(Exception):
     """The snippet uses a construct this evaluator does not map."""
 
 
-def _mp_log1p(x):
+def _mp_log1p(x: mpmath.mpf) -> mpmath.mpf:
     return mpmath.log1p(x)
 
 
-def _mp_expm1(x):
+def _mp_expm1(x: mpmath.mpf) -> mpmath.mpf:
     return mpmath.expm1(x)
 
 
