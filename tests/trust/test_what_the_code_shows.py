@@ -221,3 +221,10 @@ def test_a_guard_on_a_reduction_does_not_stop_the_analysis() -> None:
     src = "import numpy as np\ndef f(x, y):  # condhint: 1e-9 <= y <= 1e-6\n    if np.min(x) > 0.5:\n" \
           "        return np.log(1 + y)\n    return y\n"
     assert codes(src) == ["CH101"]
+
+
+def test_arange_elements_are_bounded_by_its_stop() -> None:
+    # np.arange(n) holds 0 … n - 1 (numpy's documentation): with n in [16, 127] its elements are at most 126
+    (site,) = analysed("import numpy as np\ndef f():\n    for n in (16, 127):\n"
+                       "        x = np.arange(n) * 2.5 / n\n        y = np.sin(x) * 1.5\n    return y\n").sites
+    assert site.ranges["np.arange(n)"].interval.high == 126.0

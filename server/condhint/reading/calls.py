@@ -4,7 +4,7 @@ from __future__ import annotations
 import ast
 from typing import TYPE_CHECKING
 
-from condhint.expr import CONST, SELECT, Node
+from condhint.expr import CONST, INPUT, SELECT, Node
 from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.formats import BINARY64, Format
 from condhint.reading.arrays import NOT_A_REDUCTION, reduction_call
@@ -12,6 +12,8 @@ from condhint.reading.dtypes import cast_target, dtype_keyword
 from condhint.reading.inline import inline_call
 from condhint.reading.integers import in_context_object, makes_object, returns_int
 from condhint.reading.names import INT_BUILTINS, literal_number
+from condhint.reading.ranges import Constraint
+from condhint.site import Interval
 
 if TYPE_CHECKING:
     from condhint.reading.expressions import Converter
@@ -41,7 +43,9 @@ def convert_call(conv: "Converter", e: ast.Call) -> Node | None:
     if isinstance(e.func, ast.Name) and e.func.id in INT_BUILTINS and e.func.id not in conv.env:
         return conv.opaque(e, e.func.id != "round" or returns_int(e))  # round(x, 2) is a float
     if fid is None and returns_int(e):
-        return conv.opaque(e, True)
+        leaf = conv.opaque(e, True)
+        conv.ctx.constraints.extend(arange_bound(conv, e, leaf))
+        return leaf
     if fid is None and (makes_object(e, set()) or in_context_object(e.func)):
         conv.opaque(e)  # its arguments are still read
         return None  # an object of a class the code does not show to be a float: not analysed
@@ -100,3 +104,22 @@ def _where(conv: "Converter", e: ast.Call) -> Node | None:
         return conv.opaque(e)
     a, b = branches  # type: ignore[misc]
     return conv.node(SELECT, (cond, a, b), e, a.is_int and b.is_int)
+
+
+def arange_bound(conv: "Converter", e: ast.Call, leaf: Node) -> list[Constraint]:
+    """`np.arange(n)` holds 0 … n − 1: bounded when n's range is known here (a loop over literal sizes, a guard,
+    a declaration), so its elements are not sampled independently of n."""
+    name = e.func.attr if isinstance(e.func, ast.Attribute) else getattr(e.func, "id", "")
+    if name != "arange" or len(e.args) != 1 or e.keywords:
+        return []
+    stop = conv.convert(e.args[0])
+    if stop is None or stop.kind != INPUT:
+        return []
+    highs = [c.interval.high for c in conv.ctx.constraints if c.name == stop.name and c.interval is not None]
+    declared = conv.ctx.declared.get(stop.name or "")
+    if declared is not None:
+        highs.append(declared.interval.high)
+    finite = [h for h in highs if h != float("inf")]
+    if not finite:
+        return []
+    return [Constraint(leaf.name, Interval(0.0, max(min(finite) - 1.0, 0.0)), None, "range", e.lineno)]
