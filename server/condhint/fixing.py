@@ -51,7 +51,8 @@ def fixes_for(finding: Finding, ma: ModuleAnalysis, cfg: Config, cache: Analysis
 
     # The definition holding the finding with the module-level code around it: all a fix can affect, and a
     # small syntax tree to write code against (the whole module's is not kept by the language server).
-    focused, _ = read_module(ma.index.focused_text(finding.span.line))
+    line = finding.span.line
+    focused = None if ma.index.unit_at(line).is_module else read_module(ma.index.focused_text(line))[0]
     subject = package.Subject(finding, site, unit.analyses.get(id(site)), focused or ma.index, unit.constants,
                               reanalyse)
     return package.fixes_for(subject, cfg) if seconds is None else package.fixes_for(subject, cfg, seconds)

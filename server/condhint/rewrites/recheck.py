@@ -6,7 +6,6 @@ line numbers stay put. A fix in module-level code re-analyses the whole file.
 """
 from __future__ import annotations
 
-import ast
 from collections import Counter
 from typing import TYPE_CHECKING, Callable
 
@@ -19,58 +18,10 @@ if TYPE_CHECKING:
 
 FIXABLE = FIXABLE_CATEGORIES
 RECHECKED = 3  # how many of the best candidates are re-analysed at most
-_DEFS = (ast.FunctionDef, ast.AsyncFunctionDef, ast.ClassDef)
 
 
 def fixable_findings(findings: list[Finding]) -> Counter[tuple[str, str, str]]:
     return Counter((f.code, f.scope, " ".join(f.expression.split())) for f in findings if f.category in FIXABLE)
-
-
-def _first_line(stmt: ast.stmt) -> int:
-    return min([stmt.lineno, *(d.lineno for d in getattr(stmt, "decorator_list", []))])
-
-
-def enclosing(tree: ast.Module, line: int) -> tuple[str, int] | None:
-    """(name, how many top-level definitions of that name come before it) of the definition holding `line`."""
-    seen: Counter[str] = Counter()
-    for stmt in tree.body:
-        if isinstance(stmt, _DEFS):
-            if _first_line(stmt) <= line <= (stmt.end_lineno or stmt.lineno):
-                return stmt.name, seen[stmt.name]
-            seen[stmt.name] += 1
-    return None
-
-
-def focus(text: str, where: tuple[str, int] | None) -> str:
-    """`text` with every top-level definition but `where` blanked (the whole text if that is not possible)."""
-    if where is None:
-        return text
-    try:
-        tree = ast.parse(text)
-    except SyntaxError:
-        return text
-    lines = text.splitlines(keepends=True)
-    keep: set[int] = set()
-    drop: set[int] = set()
-    seen: Counter[str] = Counter()
-    for stmt in tree.body:
-        span = set(range(_first_line(stmt), (stmt.end_lineno or stmt.lineno) + 1))
-        if isinstance(stmt, _DEFS) and (stmt.name, seen[stmt.name]) != where:
-            drop |= span
-        else:
-            keep |= span
-        if isinstance(stmt, _DEFS):
-            seen[stmt.name] += 1
-    if keep & drop:
-        return text  # statements sharing a line: keep everything
-    out = []
-    for i, line in enumerate(lines, start=1):
-        if i in drop:
-            body = line.rstrip("\r\n")
-            out.append(line[len(body):])
-        else:
-            out.append(line)
-    return "".join(out)
 
 
 def rechecked(fixes: list[Fix], finding: Finding, index: "ModuleIndex",
@@ -79,7 +30,8 @@ def rechecked(fixes: list[Fix], finding: Finding, index: "ModuleIndex",
     without any new fixable finding."""
     if not fixes:
         return []
-    original = focus(index.text, enclosing(index.tree, finding.span.line))
+    line = finding.span.line
+    original = index.text if index.unit_at(line).is_module else index.focused_text(line)
     before = fixable_findings(reanalyse(original).findings)
     (own,) = fixable_findings([finding]) or [None]
     out: list[Fix] = []
