@@ -1,6 +1,7 @@
 """Reading Python source into sites: names, imports, constants, inlining, ranges from comments and guards."""
 from __future__ import annotations
 
+import math
 import time
 from pathlib import Path
 
@@ -105,18 +106,25 @@ def test_a_shape_alias_gives_integers(analyse_src):
 
 
 @pytest.mark.parametrize("loop, bounds", [("range(1, 10)", (1.0, 9.0)), ("range(10, 0, -2)", (2.0, 10.0)),
-                                          ("range(5)", (0.0, 4.0)), ("range(n)", None)])
+                                          ("range(5)", (0.0, 4.0)), ("range(m)", (0.0, 99.0)),
+                                          ("range(n)", (0.0, math.inf))])
 def test_a_range_loop_bounds_its_counter(analyse_src, loop, bounds):
-    # Python's range: start, start + step, … before stop (the language reference); literal bounds only.
-    mod = analyse_src(f"import math\ndef f(x, n):\n    s = 0.0\n    for k in {loop}:\n"
+    # Python's range: start, start + step, … before stop (the language reference); constant bounds give an
+    # interval (`m = 100` before the loop counts), others a lower bound and a filter k <= n - 1.
+    mod = analyse_src(f"import math\ndef f(x, n):\n    s = 0.0\n    m = 100\n    for k in {loop}:\n"
                       "        s += x ** k / math.factorial(k)\n    return s\n")
     (site,) = mod.sites
     r = site.ranges["k"]
     assert r.is_int
-    if bounds is None:
-        assert r.source == "default"
-    else:
-        assert (r.interval.low, r.interval.high, r.source) == (*bounds, "range")
+    assert (r.interval.low, r.interval.high, r.source) == (*bounds, "range")
+
+
+def test_an_inner_range_is_bounded_by_the_outer_counter(analyse_src):
+    # `for k in range(i + 1)` inside `for i in range(n)`: k <= i holds where the body runs (k > i is never sampled).
+    mod = analyse_src("def f(x, n):\n    s = 0.0\n    for i in range(n):\n        for k in range(0, i + 1):\n"
+                      "            s += x ** (i - k)\n    return s\n")
+    texts = {f.condition.text for site in mod.sites for f in site.filters}
+    assert "k < i + 1" in texts, texts
 
 
 def test_comprehension_counters_over_range_are_integers(analyse_src):

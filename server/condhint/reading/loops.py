@@ -10,8 +10,8 @@ from typing import TYPE_CHECKING
 
 from condhint.expr import Node
 from condhint.reading.names import INT_BUILTINS
-from condhint.reading.integers import literal_ints
-from condhint.reading.ranges import Constraint, Context, range_call, range_constraint
+from condhint.reading.integers import literal_numbers
+from condhint.reading.ranges import Constraint, Context, assume_range, range_call
 from condhint.site import Interval
 from condhint.reading.targets import DEFS, bound_names, target_names
 
@@ -47,15 +47,16 @@ def walk_loop(w: "Walker", scope: str, stmt: ast.For | ast.AsyncFor | ast.While,
             body_ctx.int_names.update(names)
             for n in names:
                 env[n] = w.input(n, True)
-            body_ctx.constraints.extend(range_constraint(stmt.target, call))
+            assume_range(conv, stmt.target, call, body_ctx)
         elif names:  # enumerate: the first target is the index
             body_ctx.int_names.add(names[0])
             env[names[0]] = w.input(names[0], True)
-    elif not isinstance(stmt, ast.While) and isinstance(stmt.target, ast.Name) and literal_ints(stmt.iter):
-        values = literal_ints(stmt.iter) or [0]  # `for k in (1, 2, 4):` an integer in [1, 4]
-        body_ctx.int_names.add(stmt.target.id)
-        env[stmt.target.id] = w.input(stmt.target.id, True)
-        body_ctx.constraints.append(Constraint(stmt.target.id, Interval(min(values), max(values)), None, "range",
+    elif not isinstance(stmt, ast.While) and isinstance(stmt.target, ast.Name) and literal_numbers(stmt.iter):
+        values = literal_numbers(stmt.iter) or [0]  # `for k in (1, 2, 4):` an integer in [1, 4]; `[0.1, 3]`
+        if all(isinstance(v, int) for v in values):
+            body_ctx.int_names.add(stmt.target.id)
+            env[stmt.target.id] = w.input(stmt.target.id, True)
+        body_ctx.constraints.append(Constraint(stmt.target.id, Interval.of_values(values), None, "range",
                                                stmt.lineno))
     w.block(scope, stmt.body, env, body_ctx)
     w.block(scope, stmt.orelse, env, ctx.copy())
@@ -115,5 +116,9 @@ def comprehension_scope(conv: "Converter", e: ast.ListComp | ast.SetComp | ast.G
             inner[t] = conv.w.input(t, call is not None)
         if call is not None:
             ctx.int_names.update(target_names(gen.target))
-            ctx.constraints.extend(range_constraint(gen.target, call))
+            conv.env, saved = inner, conv.env
+            try:
+                assume_range(conv, gen.target, call, ctx)
+            finally:
+                conv.env = saved
     return inner, ctx

@@ -121,21 +121,28 @@ def range_call(e: ast.expr, env: dict[str, Node | None]) -> ast.Call | None:
     return None
 
 
-def range_constraint(target: ast.expr, call: ast.Call) -> list[Constraint]:
-    """`for k in range(1, 10)`: k in [1, 9], when the bounds are integer literals and the target one name."""
-    bounds = _range_bounds(call)
-    if bounds is None or not isinstance(target, ast.Name):
-        return []
-    return [Constraint(target.id, Interval(*bounds), None, "range", call.lineno)]
-
-
-def _range_bounds(call: ast.Call) -> tuple[float, float] | None:
-    """The smallest and largest values of `range(…)` with integer literal arguments, or None."""
-    vals = [_int_literal(a) for a in call.args]
-    if call.keywords or not 1 <= len(vals) <= 3 or any(v is None for v in vals):
-        return None
-    items = range(*vals) if vals[-1] != 0 or len(vals) < 3 else range(0)  # type: ignore[arg-type]
-    return (float(min(items[0], items[-1])), float(max(items[0], items[-1]))) if items else None
+def assume_range(conv: "Converter", target: ast.expr, call: ast.Call, ctx: Context) -> None:
+    """`for k in range(a, b)` (or a comprehension over it): what holds inside is `a <= k < b` — an interval
+    when the bounds are constants (`n = 100` before counts), a filter when they are other values
+    (`range(0, i + 1)`: k <= i). A negative step gives `a >= k > b`; an unknown step, nothing."""
+    if not isinstance(target, ast.Name) or call.keywords or not 1 <= len(call.args) <= 3:
+        return
+    args = list(call.args)
+    nodes = [conv.convert(a) for a in args]
+    values = [evaluate_constant(n) if n is not None else None for n in nodes]
+    if all(v is not None and float(v).is_integer() for v in values):
+        r = range(*(int(v) for v in values))  # type: ignore[arg-type]
+        if r:
+            ctx.constraints.append(Constraint(target.id, Interval(float(min(r[0], r[-1])), float(max(r[0], r[-1]))),
+                                              None, "range", call.lineno))
+        return
+    start, stop = (ast.copy_location(ast.Constant(0), call), args[0]) if len(args) == 1 else (args[0], args[1])
+    step = _int_literal(args[2]) if len(args) == 3 else 1
+    if step is None or step == 0:
+        return
+    name = ast.copy_location(ast.Name(target.id, ast.Load()), target)
+    ops: list[ast.cmpop] = [ast.LtE(), ast.Lt()] if step > 0 else [ast.GtE(), ast.Gt()]
+    assume(conv, ast.Compare(start, ops, [name, stop]), True, ctx, "range", call.lineno)
 
 
 def _int_literal(e: ast.expr) -> int | None:
