@@ -15,11 +15,26 @@ class Interval:
     high: float = math.inf
     low_open: bool = False
     high_open: bool = False
+    values: tuple[float, ...] | None = None  # the only values the code gives it (`np.array([0.1, 5, 11])`)
+
+    @classmethod
+    def of_values(cls, values: "list[float] | tuple[float, ...]") -> "Interval":
+        return cls(float(min(values)), float(max(values)), values=tuple(sorted({float(v) for v in values})))
 
     def intersect(self, other: "Interval") -> "Interval":
         lo, lo_open = max((self.low, self.low_open), (other.low, other.low_open), key=lambda t: (t[0], t[1]))
         hi, hi_open = min((self.high, not self.high_open), (other.high, not other.high_open), key=lambda t: (t[0], t[1]))
-        return Interval(lo, hi, lo_open, not hi_open)
+        out = Interval(lo, hi, lo_open, not hi_open)
+        vals = self.values if other.values is None else other.values if self.values is None else tuple(
+            v for v in self.values if v in other.values)
+        if vals is not None:
+            kept = tuple(v for v in vals if out.contains(v))
+            return Interval.of_values(kept) if kept else Interval(1.0, 0.0)  # empty
+        return out
+
+    def contains(self, v: float) -> bool:
+        return (self.low < v or (self.low == v and not self.low_open)) and (
+            v < self.high or (v == self.high and not self.high_open))
 
     @property
     def empty(self) -> bool:
@@ -54,7 +69,8 @@ class InputRange:
     is_int: bool = False
 
     def narrowed(self, interval: Interval, source: str, line: int) -> "InputRange":
-        src = source if self.source == "default" else f"{self.source}+{source}"
+        src = source if self.source == "default" else self.source if self.source.endswith(source) else \
+            f"{self.source}+{source}"
         return replace(self, interval=self.interval.intersect(interval), source=src, line=line)
 
 

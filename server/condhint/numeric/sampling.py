@@ -11,6 +11,9 @@ from condhint.numeric.formats import Format
 from condhint.site import InputRange, Interval
 
 
+LITERAL = "literal"  # the range source of values the code states: `np.linspace(0, 1, n)`, `np.array([0.1, 5])`
+
+
 def resolve(interval: Interval, default: tuple[float, float]) -> tuple[float, float]:
     """A bounded interval to sample: missing bounds are filled from the default magnitudes."""
     d_lo, d_hi = default
@@ -83,7 +86,14 @@ def sample(ranges: dict[str, InputRange], names: list[str], n: int, seed: int,
             bounds[name] = (max(bounds[name][0], 1.0), max(bounds[name][1], 1.0))  # counts and sizes
     for k, name in enumerate(names):
         lo, hi = bounds[name]
-        pts = points(lo, hi, n)
+        # values the code spells out (a grid, a literal array) are spread evenly like the grid, not by magnitude
+        stated = ranges[name].interval.values
+        if stated:  # exactly the values the code gives (`np.array([0.1, 5, 11])`), each about as often
+            pts = np.resize(np.asarray(stated, dtype=float), n)
+        elif ranges[name].source.split("+")[-1] == LITERAL:
+            pts = np.linspace(lo, hi, n)
+        else:
+            pts = points(lo, hi, n)
         if k > 0:
             pts = rng.permutation(pts)
         if corners:

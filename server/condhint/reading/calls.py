@@ -2,18 +2,21 @@
 from __future__ import annotations
 
 import ast
+import math
 from typing import TYPE_CHECKING
 
-from condhint.expr import CONST, INPUT, SELECT, Node
+from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node
+from condhint.numeric.evaluate import evaluate_constant
+from condhint.numeric.sampling import LITERAL
 from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.formats import BINARY64, Format
 from condhint.reading.arrays import NOT_A_REDUCTION, reduction_call
 from condhint.reading.dtypes import cast_target, dtype_keyword
 from condhint.reading.inline import inline_call
-from condhint.reading.integers import in_context_object, makes_object, returns_int
+from condhint.reading.integers import in_context_object, literal_numbers, makes_object, returns_int
 from condhint.reading.names import INT_BUILTINS, literal_number
 from condhint.reading.ranges import Constraint
-from condhint.site import Interval
+from condhint.site import Filter, Interval
 
 if TYPE_CHECKING:
     from condhint.reading.expressions import Converter
@@ -44,14 +47,17 @@ def convert_call(conv: "Converter", e: ast.Call) -> Node | None:
         return conv.opaque(e, e.func.id != "round" or returns_int(e))  # round(x, 2) is a float
     if fid is None and returns_int(e):
         leaf = conv.opaque(e, True)
-        conv.ctx.constraints.extend(arange_bound(conv, e, leaf))
+        conv.ctx.constraints.extend(call_bounds(conv, e, leaf))
         return leaf
     if fid is None and (makes_object(e, set()) or in_context_object(e.func)):
         conv.opaque(e)  # its arguments are still read
         return None  # an object of a class the code does not show to be a float: not analysed
     if fid is None or any(isinstance(a, ast.Starred) for a in e.args) or any(
             k.arg not in _KEYWORDS for k in e.keywords):
-        return conv.opaque(e)
+        leaf = conv.opaque(e)
+        if fid is None:
+            conv.ctx.constraints.extend(call_bounds(conv, e, leaf))
+        return leaf
     if fid == "where":  # np.where(cond, a, b): piecewise, like `a if cond else b`
         return _where(conv, e)
     nodes = [conv.convert(a) for a in e.args]
@@ -106,20 +112,42 @@ def _where(conv: "Converter", e: ast.Call) -> Node | None:
     return conv.node(SELECT, (cond, a, b), e, a.is_int and b.is_int)
 
 
-def arange_bound(conv: "Converter", e: ast.Call, leaf: Node) -> list[Constraint]:
-    """`np.arange(n)` holds 0 … n − 1: bounded when n's range is known here (a loop over literal sizes, a guard,
-    a declaration), so its elements are not sampled independently of n."""
+def call_bounds(conv: "Converter", e: ast.Call, leaf: Node) -> list[Constraint]:
+    """Values the code builds from numbers it states: `np.arange(3, 20)` (3 … 19), `np.arange(1, m + 1)` after
+    `m = 20`, `np.linspace(0, 2 * np.pi, n)`, `np.array([0.1, 0.2, 5])`. `np.arange(n)` holds 0 … n − 1: below
+    n (a filter, so its elements are not sampled independently of n) and bounded when n's range is known here."""
     name = e.func.attr if isinstance(e.func, ast.Attribute) else getattr(e.func, "id", "")
-    if name != "arange" or len(e.args) != 1 or e.keywords:
+    if leaf.kind != INPUT or leaf.name is None or (e.keywords and name != "linspace"):
         return []
-    stop = conv.convert(e.args[0])
-    if stop is None or stop.kind != INPUT:
+    if name in ("array", "asarray") and len(e.args) == 1:
+        values = literal_numbers(e.args[0])
+        return [Constraint(leaf.name, Interval.of_values(values), None, LITERAL, e.lineno)] if values else []
+    if name not in ("arange", "linspace") or not 1 <= len(e.args) <= 3:
         return []
+    nodes = [conv.convert(a) for a in e.args]
+    consts = [evaluate_constant(n) if n is not None else None for n in nodes]
+    if name == "linspace":
+        a, b = consts[0], consts[1] if len(consts) > 1 else None
+        return [] if a is None or b is None else [
+            Constraint(leaf.name, Interval(min(a, b), max(a, b)), None, LITERAL, e.lineno)]
+    if all(c is not None for c in consts):
+        start, stop, step = (0.0, consts[0], 1.0) if len(consts) == 1 else (
+            consts[0], consts[1], consts[2] if len(consts) == 3 else 1.0)
+        if not step or (stop - start) / step <= 0:  # type: ignore[operator]
+            return []
+        last = start + (math.ceil((stop - start) / step) - 1) * step  # type: ignore[operator]
+        return [Constraint(leaf.name, Interval(min(start, last), max(start, last)), None, LITERAL, e.lineno)]
+    stop = nodes[0]
+    if len(e.args) != 1 or stop is None or stop.kind != INPUT:
+        return []
+    below = Node(COMPARE, (leaf, stop), name="<", text=f"{leaf.text} < {stop.text}")
+    out = [Constraint(None, None, Filter(below, True, e.lineno), "range", e.lineno),
+           Constraint(leaf.name, Interval(0.0), None, "range", e.lineno)]
     highs = [c.interval.high for c in conv.ctx.constraints if c.name == stop.name and c.interval is not None]
     declared = conv.ctx.declared.get(stop.name or "")
     if declared is not None:
         highs.append(declared.interval.high)
-    finite = [h for h in highs if h != float("inf")]
-    if not finite:
-        return []
-    return [Constraint(leaf.name, Interval(0.0, max(min(finite) - 1.0, 0.0)), None, "range", e.lineno)]
+    finite = [h for h in highs if h != math.inf]
+    if finite:
+        out.append(Constraint(leaf.name, Interval(0.0, max(min(finite) - 1.0, 0.0)), None, "range", e.lineno))
+    return out

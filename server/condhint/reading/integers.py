@@ -120,15 +120,16 @@ def _is_sequence_literal(e: ast.expr) -> bool:
     return isinstance(e, (ast.List, ast.Tuple)) or (isinstance(e, ast.Constant) and isinstance(e.value, (str, bytes)))
 
 
-def literal_ints(e: ast.expr) -> list[int] | None:
-    """The values of a literal tuple or list of ints (`(1, 2, 4)`), or None."""
+def literal_numbers(e: ast.expr) -> list[int | float] | None:
+    """The values of a literal tuple or list of numbers (`(1, 2, 4)`, `[0.1, 3]`), or None."""
     if not isinstance(e, (ast.Tuple, ast.List)) or not e.elts:
         return None
-    out = []
+    out: list[int | float] = []
     for x in e.elts:
-        negative = isinstance(x, ast.UnaryOp) and isinstance(x.op, ast.USub)
-        core = x.operand if isinstance(x, ast.UnaryOp) else x
-        if not int_default(x) or not isinstance(core, ast.Constant):
+        negative = isinstance(x, ast.UnaryOp) and isinstance(x.op, (ast.USub, ast.UAdd))
+        core = x.operand if negative else x  # type: ignore[attr-defined]
+        if not (isinstance(core, ast.Constant) and isinstance(core.value, (int, float))
+                and not isinstance(core.value, bool)):
             return None
-        out.append(-core.value if negative else core.value)
+        out.append(-core.value if isinstance(x, ast.UnaryOp) and isinstance(x.op, ast.USub) else core.value)
     return out

@@ -269,7 +269,9 @@ class Walker:
                     # An opaque value (unknown call, subscript): name the input after the variable.
                     stated = format_of_annotation(stmt.annotation, self.names) if isinstance(stmt, ast.AnnAssign) \
                         else None
-                    node = self.input(target.id, node.is_int, like=node, fmt=stated)
+                    old, node = node, self.input(target.id, node.is_int, like=node, fmt=stated)
+                    ctx.constraints.extend(Constraint(target.id, c.interval, None, c.source, c.line)
+                                           for c in list(ctx.constraints) if c.name == old.name and c.interval)
                 self._bind(target.id, node, stmt, env, ctx)
             else:
                 shape = isinstance(value, ast.Attribute) and value.attr == "shape"  # `n, m = a.shape`
