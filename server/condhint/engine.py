@@ -235,6 +235,12 @@ def analyse_unit(index: ModuleIndex, unit: Unit, key: str, path: str, cfg: Confi
     except RecursionError:
         sites = walker.sites
         problems.append(not_analysed(path, Span(unit.start, 0, unit.start, 1), "the file is nested too deeply to analyse"))
+    except Exception as exc:  # noqa: BLE001 — a bug of ours in reading: say so, analyse what was read, go on
+        log.exception("internal error reading %s:%d", path, unit.start)
+        sites = walker.sites
+        problems.append(not_analysed(path, Span(unit.start, 0, unit.start, 1),
+                                     f"not read past this point: an internal error of condhint "
+                                     f"({type(exc).__name__}: {exc}); please report it"))
     problems += [not_analysed(path, span, why) for span, why in walker.problems]
     out.sites = sites
     best: dict[tuple[int, int, int, int, str], Finding] = {}

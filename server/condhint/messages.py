@@ -121,8 +121,9 @@ def domain_message(m: Facts) -> str:
     fn = OPERATIONS.get(flagged.kind)
     dom = f" ({fn.domain})" if fn and fn.domain else ""
     if a.category == "domain-range":
-        return (f"{code(flagged.text)} is undefined{dom} on {pct(a.undefined_fraction)} of the declared "
-                f"range (e.g. at {where(a.worst_at)}): the declared range leaves the function's domain.")
+        whose = "declared" if all(src.startswith("comment") for src in a.sources.values()) else "inputs'"
+        return (f"{code(flagged.text)} is undefined{dom} on {pct(a.undefined_fraction)} of the {whose} "
+                f"range (e.g. at {where(a.worst_at)}): the {whose} range leaves the function's domain.")
     return (f"rounding pushes the argument of {code(flagged.text)} outside its domain{dom} at "
             f"{where(a.worst_at)}, so the code returns nan where the exact formula is defined.")
 

@@ -22,12 +22,15 @@ def finding_for(site: Site, a: Analysis, cfg: Config, path: str, origin: str = "
         return None
     if a.category == "overflow" and not _has_inputs(site):
         return None  # `1e300 * 1e300`: an infinity made on purpose
+    nodes = topological(site.root)
+    culprit = nodes[a.culprit] if a.culprit is not None else site.root
+    if a.category == "overflow" and not a.underflow and culprit.format.name == "binary64" and (
+            culprit.is_int or (culprit.kind == "pow" and all(x.is_int for x in culprit.args))):
+        return None  # `2 ** ndim`: Python's integers do not overflow (numpy's fixed-width ones are typed)
     kind = BY_CATEGORY["domain" if a.category == "domain-range" else a.category]
     severity = kind.severity(a, cfg)
     if severity is None or kind.message is None:
         return None
-    nodes = topological(site.root)
-    culprit = nodes[a.culprit] if a.culprit is not None else site.root
     flagged = culprit if culprit.span is not None else site.root
     msg = kind.message(Facts(site, a, flagged, [nodes[i] for i in a.sources_of_error], cfg))
     if severity == "info" and only_at_assumed_extremes(a, cfg):

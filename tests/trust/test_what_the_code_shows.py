@@ -228,3 +228,93 @@ def test_arange_elements_are_bounded_by_its_stop() -> None:
     (site,) = analysed("import numpy as np\ndef f():\n    for n in (16, 127):\n"
                        "        x = np.arange(n) * 2.5 / n\n        y = np.sin(x) * 1.5\n    return y\n").sites
     assert site.ranges["np.arange(n)"].interval.high == 126.0
+
+
+# ---- values the code states: constant loop bounds, grids, literal arrays and lists ---------------------------------
+def test_a_comprehension_over_a_constant_range_bounds_its_counter() -> None:
+    # `(-alpha)**i` with alpha = 1 - 1e-6 rounded: the relative error of alpha grows about i-fold, so at i ≤ 99 the
+    # loss stays under 2 digits (the first-order bound i·u, Higham 2002 §3.1); at i ≈ 1e6 it is ~6 digits.
+    src = """
+        import numpy as np
+        def f():
+            n = 100
+            alpha = 1 - 1e-6
+            return np.array([(-alpha)**i for i in range({bound})])
+    """
+    assert codes(src.replace("{bound}", "n"), "warning") == []
+    (site,) = [s for s in analysed(src.replace("{bound}", "n")).sites if "alpha)**i" in s.root.text]
+    assert (site.ranges["i"].interval.low, site.ranges["i"].interval.high) == (0.0, 99.0)
+
+
+def test_an_inner_loop_never_samples_its_counter_past_the_outer_one() -> None:
+    src = """
+        def f(x, n):
+            s = 0.0
+            for i in range(n):
+                for k in range(0, i + 1):
+                    s += x ** (i - k)
+            return s
+    """
+    texts = {flt.condition.text for s in analysed(src).sites for flt in s.filters}
+    assert "k < i + 1" in texts
+
+
+@pytest.mark.parametrize("make, low, high", [
+    ("np.arange(3, 20)", 3.0, 19.0), ("np.arange(-10, 10)", -10.0, 9.0), ("np.arange(1, m + 1)", 1.0, 20.0),
+    ("np.linspace(0, 2 * np.pi, 50)", 0.0, 2 * 3.141592653589793), ("np.array([0.1, 0.2, 5, 11])", 0.1, 11.0),
+])
+def test_values_the_code_spells_out_bound_their_range(make: str, low: float, high: float) -> None:
+    src = f"import numpy as np\ndef f():\n    m = 20\n    x = {make}\n    return x * 0.5 + 1.0\n"
+    (site,) = [s for s in analysed(src).sites if s.root.text == "x * 0.5 + 1.0"]
+    ((lo, hi, source),) = [(r.interval.low, r.interval.high, r.source) for r in site.ranges.values()]
+    assert (lo, hi) == pytest.approx((low, high)) and source == "literal"
+
+
+def test_a_literal_array_is_sampled_at_its_own_values() -> None:
+    # log(cos(y)) at y = 0.1, 0.2, 0.3, 5, 11, 20: cos is positive at every one of them (cos 11 ≈ 0.0044,
+    # from memory; checked with math.cos below), so the code is defined there although cos < 0 between 2 and 4.
+    import math
+    ys = [0.1, 0.2, 0.3, 5, 11, 20]
+    assert all(math.cos(y) > 0 for y in ys)
+    src = f"import numpy as np\ndef f():\n    y = np.array({ys})\n    return -np.log(np.cos(y))\n"
+    assert "CH302" not in codes(src)
+    assert "CH302" in codes("import numpy as np\ndef f():\n    y = np.linspace(0.1, 20, 50)\n"
+                            "    return -np.log(np.cos(y))\n")
+
+
+def test_a_loop_over_literal_floats_takes_those_values() -> None:
+    # `for a in [0.1, 3]:` — a is 0.1 or 3, never 1e5 (scipy's fftpack shift test reads like this).
+    src = "import numpy as np\ndef f(x):\n    for a in [0.1, 3]:\n        y = np.sin(x + a)\n    return y\n"
+    r = inputs_of(src)["a"]
+    assert r[:2] == (0.1, 3.0) and not r[3]
+
+
+def test_python_integer_powers_do_not_overflow() -> None:
+    # 2**ndim with an integer ndim is a Python int (exact at any size), and int / int is correctly rounded however
+    # large the operands (the language reference, "Binary arithmetic operations"); 2.0**ndim overflows past
+    # ndim = 1023 (IEEE 754 binary64's largest exponent) although the quotient is about 1.
+    assert 2**1100 / (2**1100 + 1) == 1.0
+    src = "class R:\n    def w(self):\n        return 2{dot}**self.ndim / (2{dot}**self.ndim + 1)\n"
+    assert "CH301" not in codes(src.format(dot=""))
+    assert "CH301" in codes(src.format(dot=".0"))
+
+
+def test_an_internal_error_while_reading_is_one_ch001_not_a_crash(monkeypatch) -> None:
+    # Fault injection: the reader fails on the second definition. The run goes on; the failure is reported once,
+    # as CH001 naming what was not analysed, and the other definition is still analysed.
+    from condhint.reading import statements
+
+    real = statements.Walker.function
+
+    def failing(self, fn, *args, **kwargs):
+        if fn.name == "broken":
+            raise KeyError("boom")
+        return real(self, fn, *args, **kwargs)
+
+    monkeypatch.setattr(statements.Walker, "function", failing)
+    src = "import math\ndef ok(x):\n    return math.sqrt(x + 1) - math.sqrt(x)\ndef broken(y):\n    return y - 1\n"
+    found = analysed(src).report.findings
+    assert [f.code for f in found if f.code == "CH001"] == ["CH001"]
+    (ch001,) = [f for f in found if f.code == "CH001"]
+    assert "internal error" in ch001.message and "KeyError" in ch001.message and ch001.span.line == 4
+    assert any(f.code == "CH101" and f.span.line == 3 for f in found)

@@ -18,7 +18,7 @@ from condhint.config import Config
 from condhint.expr import CONST, INPUT, Node, const_rounds, topological
 from condhint.numeric.backends import F64_BACKEND, MP_BACKEND
 from condhint.numeric.formats import BINARY64
-from condhint.numeric.inputs import GUESSED, ORDINARY, defined_ranges, keep_where_guards_hold
+from condhint.numeric.inputs import ORDINARY, defined_ranges, keep_where_guards_hold, magnitude_guessed
 from condhint.numeric.evaluate import Deadline, differentiable, forward, reverse
 from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.reference import reference_values, relative_error
@@ -248,7 +248,7 @@ def _analyse(site: Site, cfg: Config, root: Node, nodes: list[Node], names: list
     shallow = bool(np.all(np.isfinite(r_sub)) and np.all(r_sub != 0) and np.max(pred64[idx]) < 12
                    and not inner_bad[idx].any())
     vmp, dps = reference_values(nodes, sub, m, deadline, shallow)
-    assumed = [k for k in names if ranges[k].source in GUESSED]  # a guess, however centred
+    assumed = [k for k in names if magnitude_guessed(ranges[k])]  # a guess, however centred
     ordinary = np.ones(m, dtype=bool)
     for k in assumed:
         mag = np.abs(sub[k])

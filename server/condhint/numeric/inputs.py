@@ -19,6 +19,13 @@ ORDINARY = (1e-3, 1e3)
 GUESSED = ("default", "parameter default")  # range sources that are guesses: the assumed range, a default's scale
 
 
+def magnitude_guessed(r: InputRange) -> bool:
+    """Whether the magnitudes an input is sampled at are a guess: its range is assumed or a default's scale, or
+    the code bounds it on one side only (`if x > 0:` says nothing of how large x gets; the sampler takes the
+    other end from the assumed range)."""
+    return r.source in GUESSED or not r.interval.bounded
+
+
 
 def scalar(node: Node) -> bool:
     """A node the scalar evaluation knows (not a reduction of an array)."""
