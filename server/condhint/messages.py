@@ -130,7 +130,8 @@ def domain_message(m: Facts) -> str:
 
 def declare_note(a: Analysis) -> str:
     """What to declare when a loss shows only at magnitudes the assumed range guessed."""
-    names = ", ".join(f"`{k}`" for k in a.assumed)
-    return (f" This shows only at values of {names} that the guessed range reaches but the code may never see "
+    names = ", ".join(f"`{k}`" for k in (a.assumed or a.names))
+    whose = "the guessed range reaches" if a.assumed else "the code's own bounds allow"
+    return (f" This shows only at values of {names} that {whose} but the code may never see "
             "(at its ends, or in a narrow part of it): declare the real range in a `# condhint:` comment to check "
             "it.")

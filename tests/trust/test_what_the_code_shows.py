@@ -318,3 +318,24 @@ def test_an_internal_error_while_reading_is_one_ch001_not_a_crash(monkeypatch) -
     (ch001,) = [f for f in found if f.code == "CH001"]
     assert "internal error" in ch001.message and "KeyError" in ch001.message and ch001.span.line == 4
     assert any(f.code == "CH101" and f.span.line == 3 for f in found)
+
+
+@pytest.mark.parametrize("kind, fires", [("int", False), ("Optional[int]", False), ("int, optional", False),
+                                         ("float", True), ("int or float", True)])
+def test_a_numpydoc_type_line_of_int_makes_an_integer(kind: str, fires: bool) -> None:
+    # (n + m * 1.0) - n is exact for integers below 2**53 (as above); numpydoc's "name : type" line (numpydoc
+    # format guide, "Parameters") is how numeric libraries state a parameter's type without annotations.
+    src = f'''
+        def f(n, m):
+            """Offsets.
+
+            Parameters
+            ----------
+            n : {kind}
+                A count.
+            m : {kind}
+                Another.
+            """
+            return {CANCELS}
+    '''
+    assert (codes(src) == ["CH101"]) is fires

@@ -238,6 +238,22 @@ def docstring_intervals(doc: str, names: list[str]) -> dict[str, Interval]:
     return out
 
 
+_NOT_ONLY_INT = {"float", "floating", "complex", "array_like", "ndarray", "array", "scalar", "number", "real", "Real"}
+
+
+def docstring_int_names(doc: str | None, names: list[str]) -> set[str]:
+    """Parameters whose numpydoc type line says they are integers ("q : int", "n : Optional[int]",
+    "order : int, optional"), not "int or float" or "array_like of ints"."""
+    out: set[str] = set()
+    for line in (doc or "").splitlines():
+        head = re.match(r"^(\w+)\s*:(.*)$", line)
+        if head and head.group(1) in names:
+            words = set(re.findall(r"[A-Za-z_]+", head.group(2)))
+            if words & {"int", "integer"} and not words & _NOT_ONLY_INT:
+                out.add(head.group(1))
+    return out
+
+
 def _parameter_sections(doc: str, names: list[str]) -> dict[str, str]:
     lines = doc.splitlines()
     out: dict[str, str] = {}

@@ -21,7 +21,8 @@ from condhint.reading.integers import int_annotation, int_default, used_as_integ
 from condhint.reading.expressions import BINOPS, Converter
 from condhint.reading.inline import Call
 from condhint.reading.loops import walk_loop
-from condhint.reading.ranges import Constraint, Context, assume, declared_ranges, parameter_constraints, site_ranges
+from condhint.reading.ranges import (Constraint, Context, assume, declared_ranges, docstring_int_names,
+                                     parameter_constraints, site_ranges)
 from condhint.reading.recurrences import read_recurrence
 from condhint.reading.targets import FUNCS, assignments, bound_names, exits, target_names
 from condhint.recurrence import Recurrence
@@ -140,6 +141,8 @@ class Walker:
         defaults = dict(zip((a.arg for a in positional[len(positional) - len(args.defaults):]), args.defaults))
         defaults.update((a.arg, d) for a, d in zip(args.kwonlyargs, args.kw_defaults) if d is not None)
         counted = used_as_integers(fn.body if isinstance(fn.body, list) else [ast.Expr(fn.body)])
+        counted |= docstring_int_names(ast.get_docstring(fn) if not isinstance(fn, ast.Lambda) else None,
+                                       [a.arg for a in [*positional, *args.kwonlyargs]])
         for a in [*positional, *args.kwonlyargs]:
             is_int = int_annotation(a.annotation) or int_default(defaults.get(a.arg)) or a.arg in counted \
                 or integer_array_annotation(a.annotation)  # `npt.NDArray[np.int64]`: exact integers
