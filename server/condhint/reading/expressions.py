@@ -16,8 +16,7 @@ from condhint.reading.calls import convert_call
 from condhint.reading.dtypes import format_limit, in_format, result_format
 from condhint.reading.integers import in_context_object
 from condhint.reading.loops import comprehension_scope
-from condhint.reading.ranges import CMPOPS, Constraint, Context
-from condhint.site import Interval
+from condhint.reading.ranges import CMPOPS, Context
 
 if TYPE_CHECKING:
     from condhint.reading.statements import Walker
@@ -102,11 +101,8 @@ class Converter:
             c = self.w.names.constant(e)
             if c is not None:
                 return _named_const(c, self.w.source.span(e), self.w.source.segment(self.w.source.span(e)))
-            if e.attr in ("size", "ndim", "shape"):  # non-negative integers (a shape is a tuple of them)
-                node = self.leaf(e, True)
-                if node.kind == INPUT and node.name is not None:
-                    self.ctx.constraints.append(Constraint(node.name, Interval(0.0), None, "size", e.lineno))
-                return node
+            if e.attr in ("size", "ndim", "shape"):  # integers (a shape is a tuple of them)
+                return self.leaf(e, True)
             limit = format_limit(e, self.w.names)
             if limit is not None:  # np.finfo(float).eps: a constant of the format record
                 span = self.w.source.span(e)
