@@ -10,6 +10,7 @@ from condhint.config import Config
 from condhint.engine import DEFAULT_CACHE, LOOP_CACHE, AnalysisCache, ModuleAnalysis, UnitCache, analyse_module
 from condhint.findings import FileReport, Finding, Fix
 from condhint.loop_findings import LOOP, loop_fixes, loop_number
+from condhint.messages import with_fix_note
 from condhint.reading.module_index import read_module
 
 
@@ -66,3 +67,5 @@ def attach_fixes(ma: ModuleAnalysis, cfg: Config, cache: AnalysisCache | None = 
     for f in ma.report.findings:
         if f.category in package.FIXABLE:
             f.fixes = fixes_for(f, ma, cfg, cache)
+            if f.fixes:
+                f.message = with_fix_note(f.message)

@@ -152,7 +152,7 @@ def markdown(facts: HoverFacts) -> str:
         out.append("- ranges:")
         for i in facts.inputs:
             line = f", line {i.line}" if i.line and not i.source.startswith("default") else ""
-            out.append(f"  - `{i.name} ∈ [{i.low:g}, {i.high:g}]` from {source_words(i.source)}{line}")
+            out.append(f"  - `{i.name} ∈ [{num(i.low, 3)}, {num(i.high, 3)}]` from {source_words(i.source)}{line}")
     if facts.formula_state == "ready" and facts.formula:
         out.append(f"- κ formula: {_code(facts.formula, 400)}")
     elif facts.formula_state == "pending":

@@ -35,6 +35,12 @@ def _how_measured(m: LoopFacts) -> str:
             f"and extrapolated with the fitted {law}")
 
 
+def _head(m: LoopFacts, what: str) -> str:
+    """The facts first, in one short sentence: "Loses 7.2 of 16 digits over 10000 steps, accumulated rounding."."""
+    a = m.analysis
+    return f"Loses {digits(a.digits)} of {BINARY64.digits:.0f} digits over {a.steps} steps, {what}."
+
+
 def _lead(m: LoopFacts) -> str:
     a, c = m.analysis, m.carried
     return (f"after {a.steps} steps ({m.loop.trips_source}) {code(c.name)} has lost {digits(a.digits)} of "
@@ -54,7 +60,7 @@ def accumulation_message(m: LoopFacts) -> str:
                   "compounding a rounding at every step")
     else:
         remedy = "Computing the value directly instead of step by step avoids adding a rounding at every step"
-    return f"{code(m.carried.text)} accumulates rounding error: {_lead(m)}. {remedy}."
+    return f"{_head(m, 'accumulated rounding')} {code(m.carried.text)} accumulates rounding error: {_lead(m)}. {remedy}."
 
 
 def _fixed_step(m: LoopFacts) -> bool:
@@ -66,7 +72,7 @@ def _fixed_step(m: LoopFacts) -> bool:
 def series_message(m: LoopFacts) -> str:
     """CH101 on a loop whose partial values cancel (an alternating series summed term by term)."""
     a = m.analysis
-    return (f"the series summed in {code(m.carried.text)} cancels: its partial sums grow to about "
+    return (f"{_head(m, 'a cancelling series')} The series summed in {code(m.carried.text)} cancels: its partial sums grow to about "
             f"×{num(a.cancellation)} its final value, so the rounding errors of the largest terms swamp the "
             f"result; {_lead(m)}. Summing more accurately (`math.fsum`) does not recover these digits, as the "
             "terms' own rounding errors are magnified too: a closed form, or a series whose terms do not cancel "
@@ -77,7 +83,7 @@ def recurrence_message(m: LoopFacts) -> str:
     """CH102: each step multiplies the error carried from the previous ones."""
     a = m.analysis
     grow = f"by about ×{num(a.factor)} per step" if a.factor is not None else "at every step"
-    return (f"{code(m.carried.text)} is an unstable recurrence: each step multiplies the error already carried in "
+    return (f"{_head(m, 'an unstable recurrence')} {code(m.carried.text)} is an unstable recurrence: each step multiplies the error already carried in "
             f"{code(m.carried.name)} {grow}, so the rounding of its starting value and of every step grows without "
             f"bound; {_lead(m)}. A closed form, or running the recurrence the other way (backwards, from a large "
             "index down, which damps the errors this direction amplifies), avoids it where the problem allows; a "

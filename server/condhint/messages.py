@@ -14,14 +14,15 @@ from condhint.site import Site
 
 
 def num(x: float | None, digits: int = 2) -> str:
-    """A figure for a message: 0.5, 3e+02, 1.2e+15."""
+    """A figure for a message, in one style everywhere: 0.5, 980, 1000, 1.2e15, 3.0e-6."""
     if x is None or (isinstance(x, float) and math.isnan(x)):
         return "n/a"
     if math.isinf(x):
         return "∞"
     if x != 0 and (abs(x) >= 1e4 or abs(x) < 1e-3):
         return f"{x:.{max(digits - 1, 0)}e}".replace("e+0", "e").replace("e-0", "e-").replace("e+", "e")
-    return f"{x:.{digits}g}"
+    text = f"{x:.{digits}g}"
+    return f"{x:.0f}" if "e" in text else text  # 980 and 1000, never 9.8e+02 or 1e+03
 
 
 def pct(fraction: float) -> str:
@@ -85,20 +86,23 @@ def formula_message(m: Facts) -> str:
         what = f"{label(flagged)} magnifies the rounding error of {', '.join(code(s.text) for s in srcs)}"
     else:
         what = f"the rounding in {label(flagged)} is magnified downstream"
-    return (f"{code(flagged.text)} loses {digits(a.digits)} of {counted_in(m.site.float_format)} at {where(a.worst_at)} "
-            f"(predicted {digits(a.worst_predicted)}): {what}. "
-            + (f"The result itself needs only κ ≈ {num(a.worst_kappa)}, so this loss is avoidable by rewriting "
-               "the formula" if (a.worst_kappa or 0) < 10 ** ((a.digits or 0) - 1) else
-               f"The problem itself has κ ≈ {num(a.worst_kappa)}: a different formula avoids this loss only for "
-               "exact inputs (as declared); any error already in the inputs is magnified as much")
+    avoidable = (a.worst_kappa or 0) < 10 ** ((a.digits or 0) - 1)
+    head = (f"Loses {digits(a.digits)} of {counted_in(m.site.float_format)}, "
+            + (f"avoidable (κ ≈ {num(a.worst_kappa)})." if avoidable else
+               f"avoidable only for exact inputs (κ ≈ {num(a.worst_kappa)})."))
+    return (f"{head} {code(flagged.text)} at {where(a.worst_at)}: {what} (predicted {digits(a.worst_predicted)} "
+            "digits). "
+            + ("The result itself is well-conditioned, so a rewrite of the formula can keep these digits"
+               if avoidable else
+               "Any error already in the inputs is magnified as much, so a rewrite helps only for exact inputs")
             + f"; ≥ {num(m.cfg.thresholds.info, 2)} digits are lost on {m.share}.")
 
 
 def inherent_message(m: Facts) -> str:
     a = m.analysis
     k = a.worst_kappa or a.kappa
-    msg = (f"{code(m.site.root.text)} is ill-conditioned at {where(a.worst_at)}: κ ≈ {num(k)} magnifies any "
-           f"relative error already in its inputs ({digits(a.digits)} digits at risk, on {m.share}).")
+    msg = (f"Input errors magnified by κ ≈ {num(k)} ({digits(a.digits)} digits at risk), inherent. "
+           f"{code(m.site.root.text)} is ill-conditioned at {where(a.worst_at)}, on {m.share}.")
     if a.result_uncertainty is not None:
         msg += f" With the declared input uncertainty the result is uncertain by ±{pct(a.result_uncertainty)}."
     else:
@@ -112,8 +116,10 @@ def overflow_message(m: Facts) -> str:
     what = ("underflows to 0" if a.underflow else "overflows to inf") + in_format(m.flagged.format)
     # a reduction that overflows (the sum under a softmax) makes the ratios to it 0 (issue 14)
     returns = "0, inf or nan" if a.underflow or m.flagged.kind in REDUCTIONS else "inf or nan"
-    return (f"{code(m.flagged.text)} {what} at {where(a.worst_at)} although the result of "
-            f"{code(m.site.root.text)} is an ordinary number there, so the code returns {returns} instead.")
+    head = ("Intermediate underflow to 0" if a.underflow else "Intermediate overflow to inf") + in_format(m.flagged.format)
+    return (f"{head}: returns {returns} for an ordinary result. "
+            f"{code(m.flagged.text)} {what} at {where(a.worst_at)} although the result of "
+            f"{code(m.site.root.text)} is an ordinary number there.")
 
 
 def domain_message(m: Facts) -> str:
@@ -122,10 +128,21 @@ def domain_message(m: Facts) -> str:
     dom = f" ({fn.domain})" if fn and fn.domain else ""
     if a.category == "domain-range":
         whose = "declared" if all(src.startswith("comment") for src in a.sources.values()) else "inputs'"
-        return (f"{code(flagged.text)} is undefined{dom} on {pct(a.undefined_fraction)} of the {whose} "
-                f"range (e.g. at {where(a.worst_at)}): the {whose} range leaves the function's domain.")
-    return (f"rounding pushes the argument of {code(flagged.text)} outside its domain{dom} at "
-            f"{where(a.worst_at)}, so the code returns nan where the exact formula is defined.")
+        return (f"Undefined{dom} on {pct(a.undefined_fraction)} of the {whose} range. {code(flagged.text)} "
+                f"leaves the function's domain at {where(a.worst_at)}.")
+    return (f"Rounding leaves the domain{dom}: returns nan where the formula is defined. Rounding pushes the "
+            f"argument of {code(flagged.text)} outside its domain at {where(a.worst_at)}.")
+
+
+FIX_NOTE = "; fix available."
+
+
+def with_fix_note(message: str) -> str:
+    """The message with its first sentence saying that a verified fix exists (added once the fix is found)."""
+    head, sep, rest = message.partition(". ")
+    if not sep or head.endswith(FIX_NOTE[:-1]):
+        return message
+    return f"{head}{FIX_NOTE} {rest}"
 
 
 def declare_note(a: Analysis) -> str:

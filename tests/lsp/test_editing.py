@@ -99,7 +99,7 @@ async def test_burst_of_50_edits_ends_with_the_last_version_only(lsp, tmp_path):
     assert versions == sorted(versions) and len(set(versions)) == len(versions)
     assert len(published) < 20  # debounced: far fewer analyses than edits
     for p in published:
-        flagged = [d for d in p.diagnostics if d.message.startswith("avoidable-loss") and "exp(rate" in d.message]
+        flagged = [d for d in p.diagnostics if d.code == "CH101" and "exp(rate" in d.message]
         assert [d.range.start.line for d in flagged] == [base + p.version - 1]
 
 

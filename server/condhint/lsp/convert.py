@@ -78,7 +78,7 @@ def to_lsp_diagnostic(f: Finding, pos: Positions, uri: str, related: bool) -> ty
             location=types.Location(uri=uri, range=pos.line_range(line)), message=note) for line, note in f.related]
     return types.Diagnostic(
         range=pos.range(f.span), severity=SEVERITY[f.severity], code=f.code, source=SOURCE,
-        message=f"{f.name}: {f.message}{figures(f)}", related_information=info,
+        message=f"{f.message}{figures(f)}", related_information=info,
         data={"fingerprint": f.fingerprint(), "code": f.code})
 
 
