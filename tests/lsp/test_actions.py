@@ -107,4 +107,4 @@ async def test_range_comment_for_an_expression_on_the_default_range(lsp, tmp_pat
     # The range now comes from the comment.
     h = await within(client.text_document_hover_async(types.HoverParams(
         text_document=types.TextDocumentIdentifier(uri=uri), position=range_of(new, " - math", "utf-16").start)))
-    assert "`n ∈ [1e-06, 1e+06]` from a condhint comment" in h.contents.value
+    assert "`n ∈ [1.00e-6, 1.00e6]` from a condhint comment" in h.contents.value

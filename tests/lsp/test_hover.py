@@ -50,7 +50,7 @@ async def test_hover_on_a_flagged_expression(lsp, tmp_path, profile):
     assert "CH101 avoidable-loss" in md and "`exp(rate * dt) - 1`" in md
     assert "κ ≈" in md and "κ_rate" in md and "κ_dt" in md
     assert re.search(r"digits lost to rounding: [0-9.]+ measured against mpmath, [0-9.]+ predicted", md)
-    assert "`rate ∈ [1e-06, 0.001]` from a condhint comment" in md
+    assert "`rate ∈ [1.00e-6, 0.001]` from a condhint comment" in md
     assert "limited by the subtraction" in md
     assert "Estimates over" in md
     # κ of exp(x) - 1 is x eˣ/(eˣ - 1) (derivable), about 1 for small x, once for rate and once for dt:
@@ -124,4 +124,4 @@ async def test_hover_names_where_each_range_came_from(lsp, tmp_path):
     undeclared = "import math\n\n\ndef step(n):\n    return math.sqrt(n + 1) - math.sqrt(n)\n"
     uri = await opened(client, tmp_path, undeclared, "step.py")
     md = (await hover_at(client, uri, undeclared, " - math", offset=1)).contents.value
-    assert "`n ∈ [1e-06, 1e+06]` from an assumed range (the default" in md  # marked as a guess (issue: trust)
+    assert "`n ∈ [1.00e-6, 1.00e6]` from an assumed range (the default" in md  # marked as a guess (issue: trust)
