@@ -5,6 +5,7 @@ import ast
 
 import pytest
 from lsprotocol import types
+from pytest_lsp import client_capabilities
 
 from lsp_support import (EMACS, NEOVIM_07, VSCODE, apply_edits, edits_for, encoding_of, expect_diagnostics, open_document,
                          range_of, replace_all, within)
@@ -102,9 +103,33 @@ async def test_range_comment_for_an_expression_on_the_default_range(lsp, tmp_pat
     acts = await actions_at(client, uri, rng, [d for d in diags if d.range == rng])
     declare = [a for a in acts if a.title.startswith("Declare the range of n")]
     assert len(declare) == 1, [a.title for a in acts]
-    new, _ = await apply_and_reanalyse(client, uri, UNDECLARED, await edited(client, declare[0]), 2)
-    assert "def poisson_step(n):  # condhint: 1e-06 <= n <= 1e+06\n" in new
-    # The range now comes from the comment.
+    assert "assumed [1.00e-6, 1.00e6]" in declare[0].title  # the guess is named, never written as a declaration
+    new, after = await apply_and_reanalyse(client, uri, UNDECLARED, await edited(client, declare[0]), 2)
+    # Placeholders the user must fill in: until then the comment reads as CH001 saying so.
+    assert "def poisson_step(n):  # condhint: low <= n <= high\n" in new
+    unfilled = [d for d in after if d.code == "CH001"]
+    assert unfilled and "placeholder" in unfilled[0].message, after
+    # Filled in, the range comes from the comment.
+    filled = new.replace("low <= n <= high", "1e6 <= n <= 1e12")
+    done = expect_diagnostics(client, uri, version=3)
+    replace_all(client, uri, filled, 3)
+    assert not [d for d in (await within(done)).diagnostics if d.code == "CH001"]
     h = await within(client.text_document_hover_async(types.HoverParams(
-        text_document=types.TextDocumentIdentifier(uri=uri), position=range_of(new, " - math", "utf-16").start)))
-    assert "`n ∈ [1.00e-6, 1.00e6]` from a condhint comment" in h.contents.value
+        text_document=types.TextDocumentIdentifier(uri=uri), position=range_of(filled, " - math", "utf-16").start)))
+    assert "`n ∈ [1.00e6, 1.00e12]` from a condhint comment" in h.contents.value
+
+
+async def test_range_action_gives_tab_stops_to_clients_that_take_snippet_edits(lsp, tmp_path):
+    # LSP 3.18: `workspace.workspaceEdit.snippetEditSupport` lets a code action carry SnippetTextEdits inside
+    # documentChanges; the placeholders become tab stops the user fills in.
+    caps = client_capabilities(NEOVIM_07)
+    caps.workspace.workspace_edit.document_changes = True
+    caps.workspace.workspace_edit.snippet_edit_support = True
+    client = await lsp(caps, init_options={"debounceMs": 10})
+    uri, diags = await open_and_wait(client, tmp_path / "step.py", UNDECLARED)
+    rng = range_of(UNDECLARED, "math.sqrt(n + 1) - math.sqrt(n)", "utf-16")
+    acts = await actions_at(client, uri, rng, [d for d in diags if d.range == rng])
+    (declare,) = [a for a in acts if a.title.startswith("Declare the range of n")]
+    edit = await edited(client, declare)
+    snippets = [e for c in edit.document_changes for e in c.edits if isinstance(e, types.SnippetTextEdit)]
+    assert [e.snippet.value for e in snippets] == ["  # condhint: ${1:low} <= n <= ${2:high}"]

@@ -17,6 +17,8 @@ from condhint.findings import Finding, Fix
 from condhint.engine import ModuleAnalysis
 from condhint.fixing import rewrites
 from condhint.lsp.textedits import LineFacts, Replacement, add_clause, comment_line_before, diff
+from condhint.messages import num
+from condhint.reading.comments import PLACEHOLDERS
 from condhint.site import Site
 
 QUICKFIX = "quickfix"
@@ -118,27 +120,32 @@ def default_inputs(names: list[str], bounds: dict[str, tuple[float, float]], sou
 
 def range_plan(lines: list[str], facts: LineFacts, text: str, site: Site,
                inputs: dict[str, tuple[float, float]], findings: list[Finding]) -> Plan | None:
-    """Insert `# condhint: lo <= x <= hi` for inputs sampled on the default range (on the def line, or as
-    the function's first line when the def line has another comment; above the statement at module level)."""
+    """Insert `# condhint: low <= x <= high` for inputs sampled on the default range (on the def line, or as
+    the function's first line when the def line has another comment; above the statement at module level).
+    The bounds are placeholders the user fills in (tab stops where the client takes snippet edits): the guessed
+    range is never written down as if the user had chosen it, and an unfilled one reads as CH001."""
     if not inputs:
         return None
-    clause = ", ".join(f"{lo:g} <= {name} <= {hi:g}" for name, (lo, hi) in inputs.items())
+    clause = ", ".join(f"{PLACEHOLDERS[0]} <= {name} <= {PLACEHOLDERS[1]}" for name in inputs)
+    snippet = ", ".join(f"${{{2 * i + 1}:{PLACEHOLDERS[0]}}} <= {name} <= ${{{2 * i + 2}:{PLACEHOLDERS[1]}}}"
+                        for i, name in enumerate(inputs))
     line = site.statement_line
     enclosing = [d for d in _defs(text) if d[0] <= line <= d[1]]
     edit: Replacement | None
     if enclosing:
         def_line, _, body_line, same = max(enclosing, key=lambda d: d[0])
-        edit = add_clause(lines, facts, def_line, clause)
+        edit = add_clause(lines, facts, def_line, clause, snippet)
         if edit is None and not same:
-            edit = comment_line_before(lines, body_line, clause)
+            edit = comment_line_before(lines, body_line, clause, snippet)
     else:
-        edit = comment_line_before(lines, line, clause)
+        edit = comment_line_before(lines, line, clause, snippet)
     if edit is None:
         return None
     names = ", ".join(inputs)
     lo, hi = next(iter(inputs.values()))
     kind = QUICKFIX if findings else REFACTOR
-    return Plan(f"range:{site.scope}:{names}", f"Declare the range of {names} (now the default [{lo:g}, {hi:g}])",
+    return Plan(f"range:{site.scope}:{names}",
+                f"Declare the range of {names} (sampled now on the assumed [{num(lo, 3)}, {num(hi, 3)}])",
                 kind, findings, lambda: [edit])
 
 

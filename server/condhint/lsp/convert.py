@@ -87,12 +87,17 @@ def result_id(items: list[types.Diagnostic]) -> str:
     return hashlib.sha1(repr(items).encode("utf-8", "surrogatepass")).hexdigest()[:20]
 
 
-def to_lsp_text_edit(r: Replacement, pos: Positions) -> types.TextEdit:
-    return types.TextEdit(range=types.Range(start=pos.to_client(r.line, r.col), end=pos.to_client(r.end_line, r.end_col)),
-                          new_text=r.text)
+def to_lsp_text_edit(r: Replacement, pos: Positions, snippets: bool = False) -> types.TextEdit | types.SnippetTextEdit:
+    """An edit for the client: with tab stops where the replacement has them and the client takes snippet edits
+    (LSP 3.18 `workspace.workspaceEdit.snippetEditSupport`, inside `documentChanges`), plain text otherwise."""
+    span = types.Range(start=pos.to_client(r.line, r.col), end=pos.to_client(r.end_line, r.end_col))
+    if snippets and r.snippet is not None:
+        return types.SnippetTextEdit(range=span, snippet=types.StringValue(value=r.snippet))
+    return types.TextEdit(range=span, new_text=r.text)
 
 
-def to_lsp_workspace_edit(uri: str, version: int | None, edits: list[types.TextEdit], document_changes: bool
+def to_lsp_workspace_edit(uri: str, version: int | None, edits: list[types.TextEdit | types.SnippetTextEdit],
+                          document_changes: bool
                           ) -> types.WorkspaceEdit:
     if document_changes:
         doc = types.OptionalVersionedTextDocumentIdentifier(uri=uri, version=version)

@@ -273,7 +273,8 @@ async def _fixes(ls: "CondhintServer", result, finding, cfg) -> list:  # noqa: A
 
 def _edit(ls: "CondhintServer", state: DocumentState, plan: actions.Plan) -> types.WorkspaceEdit:
     pos = Positions(state.lines, ls.codec)
-    edits = [to_lsp_text_edit(r, pos) for r in plan.edits()]
+    snippets = ls.document_changes and ls.snippet_edits
+    edits = [to_lsp_text_edit(r, pos, snippets) for r in plan.edits()]
     return to_lsp_workspace_edit(state.uri, state.version, edits, ls.document_changes)
 
 

@@ -212,18 +212,21 @@ def resolve_code_action(ls: "CondhintServer", action: types.CodeAction) -> types
 
 def _to_cells(ls: "CondhintServer", state: NotebookState, edit: types.WorkspaceEdit) -> types.WorkspaceEdit | None:
     """The edit of the joined text as edits of the cells; None if one text edit does not fit in one cell."""
-    edits: list[types.TextEdit] = []
+    edits: list[types.TextEdit | types.SnippetTextEdit] = []
     for change in edit.document_changes or []:
-        edits += [e for e in change.edits if isinstance(e, types.TextEdit)]
+        edits += [e for e in change.edits if isinstance(e, (types.TextEdit, types.SnippetTextEdit))]
     for uri_edits in (edit.changes or {}).values():
         edits += uri_edits
-    by_cell: dict[str, list[types.TextEdit]] = {}
+    by_cell: dict[str, list[types.TextEdit | types.SnippetTextEdit]] = {}
     for e in edits:
         cell = state.cell_at(e.range.start.line)
         end = e.range.end
         if cell is None or not (cell.holds(end.line) or (end.line == cell.first + cell.count and end.character == 0)):
             return None
-        by_cell.setdefault(cell.uri, []).append(types.TextEdit(_shift_range(e.range, -cell.first), e.new_text))
+        shifted = _shift_range(e.range, -cell.first)
+        by_cell.setdefault(cell.uri, []).append(
+            types.SnippetTextEdit(shifted, e.snippet) if isinstance(e, types.SnippetTextEdit)
+            else types.TextEdit(shifted, e.new_text))
     if edit.document_changes is not None:
         version: Callable[[str], Any] = lambda uri: ls.workspace.get_text_document(uri).version
         return types.WorkspaceEdit(document_changes=[types.TextDocumentEdit(

@@ -139,6 +139,10 @@ class CondhintServer(LanguageServer):
     def document_changes(self) -> bool:
         return self.client_has("workspace.workspace_edit.document_changes")
 
+    @property
+    def snippet_edits(self) -> bool:
+        return self.client_has("workspace.workspace_edit.snippet_edit_support")
+
     # ---- messages -----------------------------------------------------------------------------------------
     def tell(self, message: str, error: bool = False) -> None:
         kind = types.MessageType.Error if error else types.MessageType.Warning

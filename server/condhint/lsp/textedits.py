@@ -22,6 +22,7 @@ class Replacement:
     end_line: int
     end_col: int
     text: str
+    snippet: str | None = None  # the same text with tab stops (`${1:low}`) for clients that take snippet edits
 
 
 @dataclass
@@ -46,9 +47,11 @@ class LineFacts:
         return cls(comments, in_string)
 
 
-def add_clause(lines: list[str], facts: LineFacts, line: int, clause: str) -> Replacement | None:
+def add_clause(lines: list[str], facts: LineFacts, line: int, clause: str, snippet: str | None = None
+               ) -> Replacement | None:
     """Add a condhint clause on a line: extend its condhint comment or start one. None where the line
-    already has another comment or ends inside a string (a second comment would not be read)."""
+    already has another comment or ends inside a string (a second comment would not be read). `snippet` is the
+    clause with tab stops, for clients that take snippet edits."""
     if not 0 < line <= len(lines) or line in facts.in_string:
         return None
     text = lines[line - 1]
@@ -59,16 +62,17 @@ def add_clause(lines: list[str], facts: LineFacts, line: int, clause: str) -> Re
             return None
         end = col + len(comment)
         sep = "" if comment.rstrip().endswith(":") else ","
-        return Replacement(line, end, line, end, f"{sep} {clause}")
+        return Replacement(line, end, line, end, f"{sep} {clause}", snippet and f"{sep} {snippet}")
     stripped = len(text.rstrip())
-    return Replacement(line, stripped, line, len(text), f"  # condhint: {clause}")
+    return Replacement(line, stripped, line, len(text), f"  # condhint: {clause}", snippet and f"  # condhint: {snippet}")
 
 
-def comment_line_before(lines: list[str], line: int, clause: str) -> Replacement:
+def comment_line_before(lines: list[str], line: int, clause: str, snippet: str | None = None) -> Replacement:
     """A new comment line `# condhint: CLAUSE` inserted above `line`, with its indentation."""
     text = lines[line - 1] if 0 < line <= len(lines) else ""
     indent = text[: len(text) - len(text.lstrip())]
-    return Replacement(line, 0, line, 0, f"{indent}# condhint: {clause}\n")
+    return Replacement(line, 0, line, 0, f"{indent}# condhint: {clause}\n",
+                       snippet and f"{indent}# condhint: {snippet}\n")
 
 
 def apply(text: str, edits: list[Replacement]) -> str:

@@ -62,6 +62,10 @@ def split_top_level(text: str) -> list[str]:
     return [p.strip() for p in parts if p.strip()]
 
 
+PLACEHOLDERS = ("low", "high")  # what the editor's "declare the range" action writes for the user to fill in
+_UNFILLED = "`{}` is a placeholder: replace it with the bound you know (a number)"
+
+
 def parse_clauses(body: str, line: int) -> Clauses:
     result = Clauses(line)
     for clause in split_top_level(body):
@@ -81,6 +85,8 @@ def _number(node: ast.expr) -> float:
         return float(node.value)
     if isinstance(node, ast.Name) and node.id in ("inf", "pi"):
         return math.inf if node.id == "inf" else math.pi
+    if isinstance(node, ast.Name) and node.id in PLACEHOLDERS:
+        raise ValueError(_UNFILLED.format(node.id))
     raise ValueError("bounds must be numeric literals")
 
 
@@ -137,6 +143,9 @@ _FLIP = {ast.Lt: ast.Gt, ast.LtE: ast.GtE, ast.Gt: ast.Lt, ast.GtE: ast.LtE}
 
 
 def _bound(left: ast.expr, op: ast.cmpop, right: ast.expr) -> tuple[str, Interval]:
+    for side in (left, right):
+        if isinstance(side, ast.Name) and side.id in PLACEHOLDERS:
+            raise ValueError(_UNFILLED.format(side.id))
     name, other = _name(left), right
     if name is None:
         name, other = _name(right), left
