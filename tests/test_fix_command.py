@@ -30,7 +30,8 @@ GROWTH = (
     "    # condhint: 1e-12 <= fraction <= 1e-3\n"
     "    return log(1 + fraction)\n"
 )
-FIXED = GROWTH.replace("from math import exp, log\n", "from math import exp, log, expm1, log1p\n") \
+# exp and log are unused once fixed: the fix removes them from the import
+FIXED = GROWTH.replace("from math import exp, log\n", "from math import expm1, log1p\n") \
     .replace("exp(rate * dt) - 1", "expm1(rate * dt)").replace("log(1 + fraction)", "log1p(fraction)")
 
 
@@ -47,7 +48,7 @@ def test_diff_shows_the_changes_and_writes_nothing(tmp_path, capsys, monkeypatch
     assert code == 1
     assert out.startswith("--- a/m.py\n+++ b/m.py\n")
     assert "-    return exp(rate * dt) - 1\n+    return expm1(rate * dt)\n" in out
-    assert "+from math import exp, log, expm1, log1p\n" in out
+    assert "+from math import expm1, log1p\n" in out
     assert "2 fixes would be applied in 1 file" in err
     assert Path("m.py").read_text() == GROWTH
 
@@ -179,3 +180,36 @@ def test_fixing_the_demo_again_changes_nothing(fixed_demo):
                           text=True, timeout=300)
     assert proc.returncode == 0 and "0 fixes applied" in proc.stdout
     assert {p: p.read_bytes() for p in (copy / "marram").glob("*.py")} == before
+
+
+def test_the_fixed_demo_has_no_import_the_fix_left_unused(fixed_demo):
+    # pyflakes (an independent checker) on the fixed files: what the fixes replaced (`cos`, `sqrt`, `log`) is no
+    # longer imported; what they need (`hypot`, `log1p`, `expm1`, `import math`) is, in the files' own style.
+    import pyflakes.api
+    import pyflakes.reporter
+
+    copy, _ = fixed_demo
+    import io
+    out = io.StringIO()
+    for path in sorted((copy / "marram").glob("*.py")):
+        pyflakes.api.checkPath(str(path), pyflakes.reporter.Reporter(out, out))
+    assert out.getvalue() == ""
+    mooring = (copy / "marram" / "mooring.py").read_text()
+    assert "from math import sin, hypot\n" in mooring
+
+
+@pytest.mark.parametrize("before, after, expected", [
+    # the fix made `cos` unused: dropped; `sin` still used: kept
+    ("from math import cos, sin\nx = cos(1) + sin(1)\n", "from math import cos, sin\nx = 2 + sin(1)\n",
+     "from math import sin\nx = 2 + sin(1)\n"),
+    # every name unused: the line goes, its comment with it
+    ("import numpy as np  # arrays\nx = np.log(2)\n", "import numpy as np  # arrays\nx = 0.69\n", "x = 0.69\n"),
+    # unused before the fix already: left alone (not ours to remove)
+    ("from math import cos, tan\nx = cos(1)\n", "from math import cos, tan\nx = 1.0\n", "from math import tan\nx = 1.0\n"),
+    # a line shared with another statement is not rewritten
+    ("import math; y = 1\nx = math.log(2)\n", "import math; y = 1\nx = 0.69\n", "import math; y = 1\nx = 0.69\n"),
+])
+def test_imports_a_fix_made_unused_are_dropped(before, after, expected):
+    from condhint.rewrites.apply import drop_unused_imports
+
+    assert drop_unused_imports(before, after) == expected

@@ -72,6 +72,43 @@ def apply_fixes(text: str, fixes: Iterable[Fix]) -> str:
         ast.parse(out)
     except SyntaxError as exc:
         raise ValueError(f"the fixes do not give valid Python: {exc.msg} at line {exc.lineno}") from None
+    return drop_unused_imports(text, out)
+
+
+def _loads(tree: ast.AST) -> set[str]:
+    return {n.id for n in ast.walk(tree) if isinstance(n, ast.Name) and isinstance(n.ctx, ast.Load)}
+
+
+def drop_unused_imports(before: str, after: str) -> str:
+    """`after` without the module-level imported names that `before` used and `after` no longer does (the ones
+    a fix made unused); imports that were unused already, and names re-exported by `__all__`, stay. Only
+    one-line import statements are rewritten; an emptied one is removed with its line."""
+    old, new = ast.parse(before), ast.parse(after)
+    gone = _loads(old) - _loads(new)
+    if not gone:
+        return after
+    starts, lines = line_starts(after), after.splitlines(keepends=True)
+    out = after
+    for stmt in reversed(new.body):
+        if not isinstance(stmt, (ast.Import, ast.ImportFrom)) or stmt.lineno != stmt.end_lineno or any(
+                a.name == "*" for a in stmt.names):
+            continue
+        keep = [a for a in stmt.names if (a.asname or a.name).split(".")[0] not in gone]
+        if len(keep) == len(stmt.names):
+            continue
+        source = Source(after)
+        a = offset(after, starts, stmt.lineno, source.char_col(stmt.lineno, stmt.col_offset))
+        b = offset(after, starts, stmt.lineno, source.char_col(stmt.lineno, stmt.end_col_offset or 0))
+        line = lines[stmt.lineno - 1]
+        if not keep:
+            rest = line[line.find(after[a:b]) + (b - a):].strip()
+            if after[starts[stmt.lineno - 1]:a].strip() or (rest and not rest.startswith("#")):
+                continue  # shares its line with other statements
+            out = out[:starts[stmt.lineno - 1]] + out[starts[stmt.lineno - 1] + len(line):]
+            continue
+        names = ", ".join(x.name + (f" as {x.asname}" if x.asname else "") for x in keep)
+        head = f"from {'.' * stmt.level}{stmt.module or ''} import " if isinstance(stmt, ast.ImportFrom) else "import "
+        out = out[:a] + head + names + out[b:]
     return out
 
 
