@@ -14,7 +14,7 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from condhint.atomic import write_bytes_atomic
-from condhint.commands.common import UsageError, add_config_options, config_from
+from condhint.commands.common import UsageError, add_code_options, add_config_options, config_from, selected_codes
 from condhint.config import Config
 from condhint.engine import analyse_module
 from condhint.findings import SEVERITY_RANK, Finding, Fix
@@ -36,8 +36,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         "Exit status: 0 when done (or nothing to do), 1 when --diff shows changes or a file was not written, "
         "2 on usage errors."))
     p.add_argument("paths", nargs="*", default=["."], help="files or directories (default: .)")
-    p.add_argument("--select", action="append", metavar="CODE[,CODE…]",
-                   help=f"fix only these codes ({', '.join(FIXABLE_CODES)}); may be repeated")
+    add_code_options(p, f"fix only these codes ({', '.join(FIXABLE_CODES)})")
     p.add_argument("--diff", action="store_true", help="print a unified diff instead of writing the files")
     add_config_options(p)
     p.set_defaults(run=run)
@@ -54,17 +53,6 @@ class FileResult:
     @property
     def changed(self) -> bool:
         return self.text != self.source.text
-
-
-def _codes(args: argparse.Namespace) -> set[str]:
-    if not args.select:
-        return set(FIXABLE_CODES)
-    codes = {c.strip().upper() for item in args.select for c in item.split(",") if c.strip()}
-    unknown = codes - set(FIXABLE_CODES)
-    if unknown:
-        raise UsageError(f"--select: {', '.join(sorted(unknown))}: not a code fixes exist for "
-                         f"(choose from {', '.join(FIXABLE_CODES)})")
-    return codes
 
 
 def fix_text(text: str, shown: str, cfg: Config, codes: set[str], minimum: str) -> tuple[str, list, list]:
@@ -102,7 +90,7 @@ def run(args: argparse.Namespace) -> int:
     missing = [p for p in args.paths if not Path(p).exists()]
     if missing:
         raise UsageError(f"no such file or directory: {', '.join(missing)}")
-    codes = _codes(args)
+    codes = selected_codes(args, FIXABLE_CODES, "codes with verified fixes")
     minimum = args.min_severity or "info"
     cfg = replace(cfg, kappa_formula=False)
     status = 0

@@ -1,0 +1,98 @@
+"""Issue 18, from finding to fixed: `check --select/--ignore`, `fix PATH:LINE[:COL]`, the text output's mark
+of findings with a verified fix, and `explain`'s hint on how to apply the best one. Through `main(argv)`."""
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+
+from condhint.cli import main
+from condhint.kinds import KINDS
+
+# A CH101 error (1 - cos, fixable), a CH301 error (overflow, fixable) and a CH201 warning (no rewrite helps).
+THREE = (
+    "from math import cos, sqrt\n"
+    "\n"
+    "\n"
+    "def dip(tether, theta):  # condhint: 1 <= tether <= 100\n"
+    "    assert 0 < theta < 0.01\n"
+    "    return tether * (1 - cos(theta))\n"
+    "\n"
+    "\n"
+    "def magnitude(x, y):  # condhint: 1e-200 <= x <= 1e200, 1e-200 <= y <= 1e200\n"
+    "    return sqrt(x * x + y * y)\n"
+    "\n"
+    "\n"
+    "def strain(ratio):\n"
+    "    # condhint: 1.00005 <= ratio <= 1.01, ratio +- 0.01%\n"
+    "    return (ratio - 1.0) / 2.1\n"
+)
+
+
+def run(capsys, *argv: str) -> tuple[int, str, str]:
+    code = main(list(argv))
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+@pytest.fixture
+def three(tmp_path: Path) -> Path:
+    path = tmp_path / "m.py"
+    path.write_text(THREE)
+    return path
+
+
+def _codes_in_text(out: str) -> list[str]:
+    return [line.rsplit("[", 1)[1].split("]")[0] for line in out.splitlines() if ": note: " not in line
+            and line.startswith("/")]
+
+
+# ---- --select / --ignore ---------------------------------------------------------------------------------------
+def test_select_and_ignore_in_text_with_fail_on(three, capsys):
+    code, out, _ = run(capsys, "check", "--select", "CH201", "--fail-on", "error", str(three))
+    assert code == 0  # the two errors are not selected: only a warning is left
+    assert _codes_in_text(out) == ["CH201"] and out.endswith("1 file checked: 1 warning\n")
+    code, out, _ = run(capsys, "check", "--select", "ch201,CH301", "--fail-on", "error", str(three))
+    assert code == 1 and sorted(_codes_in_text(out)) == ["CH201", "CH301"]
+    code, out, _ = run(capsys, "check", "--ignore", "CH101", "--ignore", "CH301", "--fail-on", "error", str(three))
+    assert code == 0 and _codes_in_text(out) == ["CH201"]
+    code, out, _ = run(capsys, "check", "--select", "CH101,CH201", "--ignore", "CH201", str(three))
+    assert code == 1 and _codes_in_text(out) == ["CH101"]
+
+
+def test_select_and_ignore_in_json_and_sarif(three, capsys):
+    code, out, _ = run(capsys, "check", "--format", "json", "--ignore", "CH101,CH301", "--fail-on", "warning",
+                       str(three))
+    assert code == 1 and [f["code"] for f in json.loads(out)["findings"]] == ["CH201"]
+    code, out, _ = run(capsys, "check", "--format", "sarif", "--select", "CH301", "--fail-on", "warning",
+                       str(three))
+    results = json.loads(out)["runs"][0]["results"]
+    assert code == 1 and [r["ruleId"] for r in results] == ["CH301"]
+    code, out, _ = run(capsys, "check", "--format", "sarif", "--select", "CH201", "--fail-on", "error", str(three))
+    assert code == 0 and [r["ruleId"] for r in json.loads(out)["runs"][0]["results"]] == ["CH201"]
+
+
+def test_select_narrows_statistics_and_markdown(three, capsys):
+    _, out, _ = run(capsys, "check", "--statistics", "--select", "CH301", str(three))
+    table = out.split("\n\n", 1)[1]
+    assert "CH301" in table and "CH101" not in table and "CH201" not in table
+    _, out, _ = run(capsys, "check", "--format", "markdown", "--ignore", "CH301", str(three))
+    assert "CH101" in out and "CH201" in out and "CH301" not in out
+
+
+def test_unknown_codes_are_a_usage_error_naming_the_known_ones(three, capsys):
+    code, out, err = run(capsys, "check", "--select", "CH101,CH999", str(three))
+    assert code == 2 and out == "" and "Traceback" not in err
+    assert "CH999" in err and all(k.code in err for k in KINDS)
+    code, _, err = run(capsys, "check", "--ignore", "nonsense", str(three))
+    assert code == 2 and "NONSENSE" in err and "known codes" in err
+    code, _, err = run(capsys, "fix", "--ignore", "CH998", str(three))
+    assert code == 2 and "CH998" in err and three.read_text() == THREE
+
+
+def test_fix_ignore_leaves_those_codes(three, capsys):
+    code, out, _ = run(capsys, "fix", "--ignore", "CH301", str(three))
+    assert code == 0 and "fixed CH101" in out and "CH301" not in out
+    text = three.read_text()
+    assert "sqrt(x * x + y * y)" in text and "1 - cos(theta)" not in text
