@@ -96,3 +96,61 @@ def test_fix_ignore_leaves_those_codes(three, capsys):
     assert code == 0 and "fixed CH101" in out and "CH301" not in out
     text = three.read_text()
     assert "sqrt(x * x + y * y)" in text and "1 - cos(theta)" not in text
+
+
+# ---- fix PATH:LINE[:COL] ---------------------------------------------------------------------------------------
+def _changed_lines(before: str, after: str) -> list[int]:
+    a, b = before.splitlines(), after.splitlines()
+    assert len(a) == len(b)
+    return [i + 1 for i, (x, y) in enumerate(zip(a, b)) if x != y]
+
+
+def test_fix_at_a_place_changes_only_that_finding(three, capsys):
+    code, out, _ = run(capsys, "fix", f"{three}:10:25")
+    assert code == 0 and "fixed CH301" in out and "1 fix applied in 1 file" in out
+    after = three.read_text()
+    assert _changed_lines(THREE, after) == [1, 10]  # the import line and the finding's own line
+    assert "hypot(x, y)" in after and "1 - cos(theta)" in after
+
+
+def test_fix_at_a_place_inside_the_span_and_without_column(three, capsys):
+    code, _, _ = run(capsys, "fix", f"{three}:6:26")  # on `cos`, inside `1 - cos(theta)`
+    assert code == 0
+    assert _changed_lines(THREE, three.read_text()) == [1, 6]
+    three.write_text(THREE)
+    code, _, _ = run(capsys, "fix", f"{three}:10")
+    assert code == 0 and _changed_lines(THREE, three.read_text()) == [1, 10]
+
+
+def test_fix_at_a_place_with_diff_writes_nothing(three, capsys):
+    code, out, err = run(capsys, "fix", "--diff", f"{three}:6:22")
+    assert code == 1 and THREE == three.read_text()
+    removed = [line for line in out.splitlines() if line.startswith("-") and not line.startswith("---")]
+    assert removed == ["-from math import cos, sqrt", "-    return tether * (1 - cos(theta))"]
+    assert "1 fix would be applied" in err
+
+
+def test_fix_at_a_place_with_nothing_fixable(three, tmp_path, capsys):
+    code, out, err = run(capsys, "fix", f"{three}:15:13")  # CH201: no rewrite helps
+    assert code == 1 and out == "" and "CH201" in err and "unchanged" in err
+    code, _, err = run(capsys, "fix", f"{three}:3")  # an empty line
+    assert code == 1 and "no finding there" in err
+    code, _, err = run(capsys, "fix", "--ignore", "CH301", f"{three}:10:25")
+    assert code == 1 and "CH301" in err
+    assert three.read_text() == THREE
+    erf = tmp_path / "erf.py"
+    erf.write_text("import math\n\n\ndef f(x):  # condhint: 1e3 <= x <= 1e4\n"
+                   "    return math.erf(x * 1e-3 + 1e-9) - math.erf(x * 1e-3)\n")
+    before = erf.read_text()
+    code, _, err = run(capsys, "fix", f"{erf}:5")  # a CH101 the rewrite search finds nothing for
+    assert code == 1 and "no verified fix was found for the CH101 finding there" in err
+    assert erf.read_text() == before
+
+
+def test_fix_place_usage_errors(three, capsys):
+    for argv, says in ((["fix", f"{three}:0"], "start at 1"), (["fix", f"{three.parent}/nope.py:3"], "no such file"),
+                       (["fix", f"{three}:6", str(three)], "on its own"),
+                       (["fix", f"{three.parent}/n.ipynb:1:2"], ".py")):
+        code, _, err = run(capsys, *argv)
+        assert code == 2 and says in err and "Traceback" not in err, argv
+    assert three.read_text() == THREE
