@@ -154,3 +154,35 @@ def test_fix_place_usage_errors(three, capsys):
         code, _, err = run(capsys, *argv)
         assert code == 2 and says in err and "Traceback" not in err, argv
     assert three.read_text() == THREE
+
+
+# ---- the text output's mark of findings with a verified fix ----------------------------------------------------
+DEMO = Path(__file__).resolve().parents[2] / "docs" / "examples" / "marram"
+
+
+def _marks_match_json(capsys, target: Path) -> int:
+    """Check that `--mark-fixes` tags exactly the findings whose JSON `fixes` is not empty; the count."""
+    _, out, _ = run(capsys, "check", "--mark-fixes", "-j", "1", str(target))
+    _, doc, _ = run(capsys, "check", "--format", "json", "--min-severity", "warning", "-j", "1", str(target))
+    with_fix = {(f["path"], f["line"], f["column"]): bool(f["fixes"]) for f in json.loads(doc)["findings"]}
+    rows = [line for line in out.splitlines()[:-1] if ": note: " not in line]
+    assert len(rows) == len(with_fix)
+    for line in rows:
+        path, ln, col = line.split(": ", 1)[0].rsplit(":", 2)
+        assert line.endswith("] [verified fix]") == with_fix[(path, int(ln), int(col))], line
+    n = sum(with_fix.values())
+    summary = out.splitlines()[-1]
+    assert summary.endswith(f"; {n} with a verified fix — run `condhint fix`" if n else "; none with a verified fix")
+    return n
+
+
+def test_mark_is_on_exactly_the_findings_with_fixes(three, capsys):
+    assert _marks_match_json(capsys, three) == 2  # CH101 and CH301, not CH201
+    assert _marks_match_json(capsys, DEMO) >= 10
+
+
+def test_without_the_flag_text_output_has_no_mark(three, capsys):
+    _, out, _ = run(capsys, "check", str(three))
+    assert "verified fix" not in out
+    _, out, _ = run(capsys, "check", "--mark-fixes", "--select", "CH201", str(three))
+    assert "[verified fix]" not in out and out.endswith("1 warning; none with a verified fix\n")

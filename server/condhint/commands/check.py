@@ -26,6 +26,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--format", choices=sorted(WRITERS), default="text")
     p.add_argument("--output", metavar="FILE", help="write the report to FILE instead of stdout")
     p.add_argument("--fail-on", choices=("info", "warning", "error"), help="exit 1 from this severity on")
+    p.add_argument("--mark-fixes", action="store_true",
+                   help="text output: tag findings that have a verified fix and count them (searching the fixes "
+                        "makes the check slower; json, sarif and markdown always carry them)")
     p.add_argument("--statistics", action="store_true",
                    help="add a table of findings by code: severities, suppressed, files, worst loss")
     add_code_options(p, "report only findings of these codes")
@@ -45,11 +48,13 @@ def run(args: argparse.Namespace) -> int:
         cfg = replace(cfg, kappa_formula=False)
     codes = selected_codes(args)
     narrowing = Narrowing(args)
-    result = check_paths(args.paths, cfg, fixes=args.format in FIX_FORMATS and cfg.fixes, **run_settings(args))
+    mark = args.mark_fixes and args.format == "text" and cfg.fixes
+    result = check_paths(args.paths, cfg, fixes=(args.format in FIX_FORMATS or mark) and cfg.fixes,
+                         **run_settings(args))
     keep_codes(result.reports, codes)  # before everything else: what is not selected is not reported at all
     notes = narrowing.apply(result.reports)
     shown = args.min_severity or ("warning" if args.format in HUMAN_FORMATS else "info")
-    options = {"min_severity": shown, "statistics": args.statistics and args.format != "text"}
+    options = {"min_severity": shown, "statistics": args.statistics and args.format != "text", "mark_fixes": mark}
     out = writer(args.format)(result.reports, options) + statistics_text(args, result.reports, shown)
     if args.output:
         from condhint.atomic import write_text_atomic
