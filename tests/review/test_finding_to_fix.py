@@ -186,3 +186,35 @@ def test_without_the_flag_text_output_has_no_mark(three, capsys):
     assert "verified fix" not in out
     _, out, _ = run(capsys, "check", "--mark-fixes", "--select", "CH201", str(three))
     assert "[verified fix]" not in out and out.endswith("1 warning; none with a verified fix\n")
+
+
+# ---- explain's hint ---------------------------------------------------------------------------------------------
+def test_explain_ends_with_how_to_apply_the_best_fix(three, capsys):
+    code, out, _ = run(capsys, "explain", f"{three}:6")
+    assert code == 0
+    tail = out.rstrip("\n").splitlines()[-3:]
+    assert tail[0] == "to apply the best verified fix"
+    assert tail[1] == f"    condhint fix {three}:6:22"
+    assert tail[2].startswith("    in an editor, the quick fix “Write 1 − cos(x) as 2·sin²(x/2)")
+    _, doc, _ = run(capsys, "explain", "--format", "json", f"{three}:6")
+    hint = json.loads(doc)["apply"]
+    assert hint["command"] == f"condhint fix {three}:6:22" and tail[2].endswith(f"“{hint['quick_fix']}”")
+    # the title is the language server's quick fix for the same finding
+    from condhint.config import Config
+    from condhint.engine import analyse_module
+    from condhint.fixing import fixes_for
+    from condhint.lsp.actions import fix_plans
+
+    ma = analyse_module(THREE, str(three), Config())
+    finding = next(f for f in ma.report.findings if f.span.line == 6)
+    assert fix_plans(THREE, finding, fixes_for(finding, ma, Config()))[0].title == hint["quick_fix"]
+    # and the command does it: only that finding's line (and the import) change
+    code, _, _ = run(capsys, *hint["command"].split()[1:])
+    assert code == 0 and _changed_lines(THREE, three.read_text()) == [1, 6]
+
+
+def test_explain_has_no_hint_without_a_verified_fix(three, capsys):
+    _, out, _ = run(capsys, "explain", f"{three}:15")
+    assert "condhint fix" not in out and "quick fix" not in out
+    _, doc, _ = run(capsys, "explain", "--format", "json", f"{three}:15")
+    assert json.loads(doc)["apply"] is None
