@@ -60,7 +60,7 @@ class FileResult:
         return self.text != self.source.text
 
 
-Place = tuple[int, "int | None"]  # (line, 0-based column or None)
+Place = tuple[int, int | None]  # (line, 0-based column or None)
 
 
 def findings_at(findings: list[Finding], line: int, col: int | None) -> list[Finding]:
