@@ -69,3 +69,12 @@ def attach_fixes(ma: ModuleAnalysis, cfg: Config, cache: AnalysisCache | None = 
             f.fixes = fixes_for(f, ma, cfg, cache)
             if f.fixes:
                 f.message = with_fix_note(f.message)
+
+
+def quick_fix_title(fix: Fix, finding: Finding) -> str:
+    """The title an editor shows for the quick fix (also named by `explain`): the rewrite's title with its
+    measured improvement (the rewrite engine's titles usually say it)."""
+    if "digit" in fix.title:
+        return fix.title
+    before = fix.measured_digits_lost_before or finding.digits_lost or 0.0
+    return f"{fix.title} (loses {fix.measured_digits_lost_after:.1f} instead of {before:.1f} digits, measured)"

@@ -6,10 +6,11 @@ import sys
 from dataclasses import replace
 from pathlib import Path
 
-from condhint.commands.common import UsageError, add_config_options, config_from
+from condhint.commands.common import UsageError, add_code_options, add_config_options, config_from, selected_codes
 from condhint.findings import SEVERITY_RANK
 from condhint.outputs import WRITERS, writer
-from condhint.review.options import Narrowing, add_review_options, print_notes, run_settings, statistics_text
+from condhint.review.options import (Narrowing, add_review_options, keep_codes, print_notes, run_settings,
+                                     statistics_text)
 from condhint.runner import check_paths
 
 HUMAN_FORMATS = ("text", "markdown")  # these show warnings and errors unless --min-severity says otherwise
@@ -25,8 +26,12 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--format", choices=sorted(WRITERS), default="text")
     p.add_argument("--output", metavar="FILE", help="write the report to FILE instead of stdout")
     p.add_argument("--fail-on", choices=("info", "warning", "error"), help="exit 1 from this severity on")
+    p.add_argument("--mark-fixes", action="store_true",
+                   help="text output: tag findings that have a verified fix and count them (searching the fixes "
+                        "makes the check slower; json, sarif and markdown always carry them)")
     p.add_argument("--statistics", action="store_true",
                    help="add a table of findings by code: severities, suppressed, files, worst loss")
+    add_code_options(p, "report only findings of these codes")
     add_config_options(p)
     add_review_options(p)
     p.set_defaults(run=run)
@@ -41,11 +46,15 @@ def run(args: argparse.Namespace) -> int:
         cfg = replace(cfg, min_severity=args.min_severity) if args.format not in HUMAN_FORMATS else cfg
     if args.format not in FORMULA_FORMATS:  # derived with sympy: on real code the costliest step, shown only there
         cfg = replace(cfg, kappa_formula=False)
+    codes = selected_codes(args)
     narrowing = Narrowing(args)
-    result = check_paths(args.paths, cfg, fixes=args.format in FIX_FORMATS and cfg.fixes, **run_settings(args))
+    mark = args.mark_fixes and args.format == "text" and cfg.fixes
+    result = check_paths(args.paths, cfg, fixes=(args.format in FIX_FORMATS or mark) and cfg.fixes,
+                         **run_settings(args))
+    keep_codes(result.reports, codes)  # before everything else: what is not selected is not reported at all
     notes = narrowing.apply(result.reports)
     shown = args.min_severity or ("warning" if args.format in HUMAN_FORMATS else "info")
-    options = {"min_severity": shown, "statistics": args.statistics and args.format != "text"}
+    options = {"min_severity": shown, "statistics": args.statistics and args.format != "text", "mark_fixes": mark}
     out = writer(args.format)(result.reports, options) + statistics_text(args, result.reports, shown)
     if args.output:
         from condhint.atomic import write_text_atomic

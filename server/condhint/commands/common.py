@@ -4,7 +4,7 @@ from __future__ import annotations
 import argparse
 import sys
 from pathlib import Path
-from typing import Any
+from typing import Any, Iterable, Sequence
 
 from condhint.config import SEVERITIES, Config, load_config
 
@@ -36,3 +36,34 @@ def config_from(args: argparse.Namespace, paths: list[str]) -> Config:
     for m in messages:
         print(f"condhint: {m}", file=sys.stderr)
     return cfg
+
+
+def add_code_options(p: argparse.ArgumentParser, select_help: str) -> None:
+    """--select and --ignore: which finding codes a command acts on (`selected_codes` reads them)."""
+    p.add_argument("--select", action="append", metavar="CODE[,CODE…]", help=select_help + "; may be repeated")
+    p.add_argument("--ignore", action="append", metavar="CODE[,CODE…]",
+                   help="leave out findings of these codes; may be repeated")
+
+
+def _split(values: Iterable[str]) -> set[str]:
+    return {c.strip().upper() for item in values for c in item.split(",") if c.strip()}
+
+
+def selected_codes(args: argparse.Namespace, among: Sequence[str] | None = None, what: str = "") -> set[str]:
+    """The codes that --select (default: all of `among`) leaves after --ignore. Codes come from the registry
+    of finding kinds; `among` (default: every code), described by `what`, narrows what --select may name."""
+    from condhint.kinds import KINDS
+
+    known = [k.code for k in KINDS]
+    allowed = list(among) if among is not None else known
+    select, ignore = _split(getattr(args, "select", None) or []), _split(getattr(args, "ignore", None) or [])
+    for option, codes in (("--select", select), ("--ignore", ignore)):
+        unknown = sorted(codes - set(known))
+        if unknown:
+            raise UsageError(f"{option}: unknown code{'s' if len(unknown) > 1 else ''} {', '.join(unknown)} "
+                             f"(known codes: {', '.join(known)})")
+    beyond = sorted(select - set(allowed))
+    if beyond:
+        raise UsageError(f"--select: {', '.join(beyond)}: not among the {what or 'codes this command acts on'} "
+                         f"({', '.join(allowed)})")
+    return (select or set(allowed)) - ignore

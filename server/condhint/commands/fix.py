@@ -1,4 +1,5 @@
-"""`condhint fix PATH…`: apply the best verified rewrite of each finding, or show them as a diff.
+"""`condhint fix PATH…` or `condhint fix PATH:LINE[:COL]`: apply the best verified rewrite of each finding (or
+of the one at a place), or show them as a diff.
 
 Each file is read once, fixed in memory (up to `PASSES` rounds, so fixes that overlapped an earlier one get
 their turn), and written back atomically in its own encoding and line endings, unless it changed on disk
@@ -14,7 +15,8 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from condhint.atomic import write_bytes_atomic
-from condhint.commands.common import UsageError, add_config_options, config_from
+from condhint.commands.common import UsageError, add_code_options, add_config_options, config_from, selected_codes
+from condhint.commands.explain import parse_location
 from condhint.config import Config
 from condhint.engine import analyse_module
 from condhint.findings import SEVERITY_RANK, Finding, Fix
@@ -33,11 +35,13 @@ def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("fix", help="apply verified stable rewrites", description=(
         "Apply, for each finding, the best rewrite that was verified equivalent and measured more accurate "
         "over the same inputs. Files are written atomically and only if unchanged since they were read. "
-        "Exit status: 0 when done (or nothing to do), 1 when --diff shows changes or a file was not written, "
-        "2 on usage errors."))
-    p.add_argument("paths", nargs="*", default=["."], help="files or directories (default: .)")
-    p.add_argument("--select", action="append", metavar="CODE[,CODE…]",
-                   help=f"fix only these codes ({', '.join(FIXABLE_CODES)}); may be repeated")
+        "Given PATH:LINE[:COL] (columns 1-based, as `check` prints them), only the finding that starts there "
+        "(else the smallest one containing it; without COL, those on the line) is fixed. "
+        "Exit status: 0 when done (or nothing to do), 1 when --diff shows changes, a file was not written or "
+        "nothing at PATH:LINE[:COL] has a verified fix, 2 on usage errors."))
+    p.add_argument("paths", nargs="*", default=["."], metavar="PATH",
+                   help="files or directories (default: .), or one PATH:LINE[:COL]")
+    add_code_options(p, f"fix only these codes ({', '.join(FIXABLE_CODES)})")
     p.add_argument("--diff", action="store_true", help="print a unified diff instead of writing the files")
     add_config_options(p)
     p.set_defaults(run=run)
@@ -56,25 +60,34 @@ class FileResult:
         return self.text != self.source.text
 
 
-def _codes(args: argparse.Namespace) -> set[str]:
-    if not args.select:
-        return set(FIXABLE_CODES)
-    codes = {c.strip().upper() for item in args.select for c in item.split(",") if c.strip()}
-    unknown = codes - set(FIXABLE_CODES)
-    if unknown:
-        raise UsageError(f"--select: {', '.join(sorted(unknown))}: not a code fixes exist for "
-                         f"(choose from {', '.join(FIXABLE_CODES)})")
-    return codes
+Place = tuple[int, int | None]  # (line, 0-based column or None)
 
 
-def fix_text(text: str, shown: str, cfg: Config, codes: set[str], minimum: str) -> tuple[str, list, list]:
-    """The text with the best verified fix of every selected finding applied; (text, applied, unfixed)."""
+def findings_at(findings: list[Finding], line: int, col: int | None) -> list[Finding]:
+    """The finding that starts at (line, col), else the smallest containing it; without col, those covering
+    the line."""
+    if col is None:
+        return [f for f in findings if f.span.line <= line <= f.span.end_line]
+    starts = [f for f in findings if (f.span.line, f.span.col) == (line, col)]
+    inside = starts or [f for f in findings if (f.span.line, f.span.col) <= (line, col) <= (f.span.end_line,
+                                                                                       f.span.end_col)]
+    if not inside:
+        return []
+    return [min(inside, key=lambda f: (f.span.end_line - f.span.line, f.span.end_col - f.span.col))]
+
+
+def fix_text(text: str, shown: str, cfg: Config, codes: set[str], minimum: str,
+             at: Place | None = None) -> tuple[str, list, list]:
+    """The text with the best verified fix of every selected finding (or, with `at`, of the one at that place,
+    in a single pass) applied; (text, applied, unfixed)."""
     applied: list[tuple[Finding, Fix]] = []
     unfixed: list[Finding] = []
     rank = SEVERITY_RANK[minimum]
-    for _ in range(PASSES):
+    for _ in range(1 if at else PASSES):
         ma = analyse_module(text, shown, cfg)
         wanted = [f for f in ma.report.findings if f.code in codes and f.rank >= rank]
+        if at:
+            wanted = findings_at(wanted, *at)
         best: list[tuple[Finding, Fix]] = []
         unfixed = []
         for f in wanted:
@@ -97,12 +110,31 @@ def fix_text(text: str, shown: str, cfg: Config, codes: set[str], minimum: str) 
     return text, applied, unfixed
 
 
+def _place(paths: list[str]) -> tuple[str, Place] | None:
+    """(path, place) when the one argument is PATH:LINE[:COL] (and not itself an existing path)."""
+    located = [p for p in paths if not Path(p).exists() and ":" in p]
+    if not located:
+        return None
+    if len(paths) > 1:
+        raise UsageError(f"{located[0]}: a PATH:LINE[:COL] is fixed on its own, without other paths")
+    path, cell, line, col = parse_location(located[0])
+    if cell is not None or path.suffix != ".py":
+        raise UsageError(f"{located[0]}: `fix` rewrites Python files (.py) only")
+    if not path.is_file():
+        raise UsageError(f"no such file: {path}")
+    return str(path), (line, col)
+
+
 def run(args: argparse.Namespace) -> int:
+    located = _place(args.paths)
+    where = args.paths[0]
+    if located:
+        args.paths = [located[0]]
     cfg = config_from(args, args.paths)
     missing = [p for p in args.paths if not Path(p).exists()]
     if missing:
         raise UsageError(f"no such file or directory: {', '.join(missing)}")
-    codes = _codes(args)
+    codes = selected_codes(args, FIXABLE_CODES, "codes with verified fixes")
     minimum = args.min_severity or "info"
     cfg = replace(cfg, kappa_formula=False)
     status = 0
@@ -116,7 +148,8 @@ def run(args: argparse.Namespace) -> int:
             print(f"condhint: {exc}", file=sys.stderr)
             status = 1
             continue
-        text, applied, unfixed = fix_text(src.text, target.shown, cfg.for_path(target.shown), codes, minimum)
+        text, applied, unfixed = fix_text(src.text, target.shown, cfg.for_path(target.shown), codes, minimum,
+                                          located[1] if located else None)
         res = FileResult(target.shown, src, text, applied, unfixed)
         results.append(res)
         if not res.changed:
@@ -126,8 +159,25 @@ def run(args: argparse.Namespace) -> int:
             status = 1
         elif not write_back(target.path, res):
             status = 1
+    if located and not any(r.applied for r in results):
+        print(f"condhint: {where}: {_nothing_fixed(results, located[1], cfg)}; the file is unchanged",
+              file=sys.stderr)
+        return 1
     _summary(results, args.diff)
     return status
+
+
+def _nothing_fixed(results: list[FileResult], at: Place, cfg: Config) -> str:
+    """Why nothing was fixed at a place: the findings there have no verified fix, or there are none."""
+    unfixed = sorted({f.code for r in results for f in r.unfixed})
+    if unfixed:
+        return f"no verified fix was found for the {', '.join(unfixed)} finding there"
+    there = [f for r in results
+             for f in findings_at(analyse_module(r.text, r.shown, cfg.for_path(r.shown)).report.findings, *at)]
+    if there:
+        return (f"the {', '.join(sorted({f.code for f in there}))} finding there is not among the selected "
+                f"fixable codes and severities ({', '.join(FIXABLE_CODES)} have verified fixes)")
+    return "no finding there"
 
 
 def unified_diff(res: FileResult) -> str:

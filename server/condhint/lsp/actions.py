@@ -15,7 +15,7 @@ from typing import Callable
 from condhint.expr import Span
 from condhint.findings import Finding, Fix
 from condhint.engine import ModuleAnalysis
-from condhint.fixing import rewrites
+from condhint.fixing import quick_fix_title, rewrites
 from condhint.lsp.textedits import LineFacts, Replacement, add_clause, comment_line_before, diff
 from condhint.messages import num
 from condhint.reading.comments import PLACEHOLDERS
@@ -47,14 +47,6 @@ def overlaps(span: Span, start: tuple[int, int], end: tuple[int, int]) -> bool:
 
 
 # ---- rewrites -------------------------------------------------------------------------------------------------
-def _fix_title(fix: Fix, finding: Finding) -> str:
-    """The rewrite's title with its measured improvement (the rewrite engine's titles usually say it)."""
-    if "digit" in fix.title:
-        return fix.title
-    before = fix.measured_digits_lost_before or finding.digits_lost or 0.0
-    return f"{fix.title} (loses {fix.measured_digits_lost_after:.1f} instead of {before:.1f} digits, measured)"
-
-
 def _applied(text: str, fixes: list[Fix]) -> Callable[[], list[Replacement]]:
     def edits() -> list[Replacement]:
         engine = rewrites()
@@ -66,7 +58,7 @@ def _applied(text: str, fixes: list[Fix]) -> Callable[[], list[Replacement]]:
 
 
 def fix_plans(text: str, finding: Finding, fixes: list[Fix]) -> list[Plan]:
-    return [Plan(f"fix:{finding.fingerprint()}:{i}", _fix_title(fix, finding), QUICKFIX, [finding],
+    return [Plan(f"fix:{finding.fingerprint()}:{i}", quick_fix_title(fix, finding), QUICKFIX, [finding],
                  _applied(text, [fix]), preferred=(i == 0)) for i, fix in enumerate(fixes)]
 
 

@@ -1,21 +1,29 @@
-"""`path:line:col: severity: message [CODE]`, one finding a line, then a summary."""
+"""`path:line:col: severity: message [CODE]`, one finding a line, then a summary. With the `mark_fixes`
+option (fixes searched), findings that have a verified fix end in `[CODE] [verified fix]` and the summary
+counts them."""
 from __future__ import annotations
 
 from collections import Counter
 
 from condhint.findings import SEVERITY_RANK, FileReport
 
+FIX_TAG = "[verified fix]"
+
 
 def write(reports: list[FileReport], options: dict) -> str:
     minimum = SEVERITY_RANK[options.get("min_severity") or "warning"]
+    mark = bool(options.get("mark_fixes"))
     lines = []
     shown = Counter()
+    fixable = 0
     for rep in reports:
         for f in rep.findings:
             if f.rank < minimum:
                 continue
             shown[f.severity] += 1
-            lines.append(f"{f.location}: {f.severity}: {f.message} [{f.code}]")
+            tag = f" {FIX_TAG}" if mark and f.fixes else ""
+            fixable += bool(tag)
+            lines.append(f"{f.location}: {f.severity}: {f.message} [{f.code}]{tag}")
             cell = f"cell {f.cell}:" if f.cell is not None else ""
             for line, note in f.related:
                 lines.append(f"{f.path}:{cell}{line}:1: note: {note}")
@@ -29,5 +37,8 @@ def write(reports: list[FileReport], options: dict) -> str:
     if unread:
         summary += (f"; {unread} part{'s' if unread != 1 else ''} not analysed (CH001: syntax, budgets; "
                     "--min-severity info lists them)")
+    if mark and sum(shown.values()):
+        summary += (f"; {fixable} with a verified fix — run `condhint fix`" if fixable
+                    else "; none with a verified fix")
     lines.append(summary)
     return "\n".join(lines) + "\n"

@@ -8,6 +8,7 @@ would read after the fix.
 from __future__ import annotations
 
 import math
+import shlex
 from dataclasses import dataclass, field, replace
 from typing import Any, Callable
 
@@ -249,6 +250,20 @@ def try_fix(site: Site, expression: str) -> Fix:
     return Fix(title=f"your formula `{expression}`", replacement=expression, span=site.span, rule="user")
 
 
+def how_to_apply(e: Explanation) -> dict[str, str] | None:
+    """How to apply the best verified fix of the finding (the one `fix` would apply): the command and the
+    quick-fix title editors show. None without one, for a suppressed finding, or in a notebook (`fix` rewrites
+    .py files only)."""
+    from condhint.fixing import quick_fix_title
+
+    f = e.finding
+    best = next((c.fix for c in e.candidates if c.origin == "rewrite search"), None)
+    if f is None or best is None or f.suppressed or e.cell_line(f.span.line)[0] is not None:
+        return None
+    return {"command": f"condhint fix {shlex.quote(f'{e.path}:{f.span.line}:{f.span.col + 1}')}",
+            "quick_fix": quick_fix_title(best, f)}
+
+
 def table_rows(p: Profile, rows: int = TABLE_ROWS) -> list[int]:
     """Indices of about `rows` points spread evenly over the curve, endpoints and the worst point included."""
     if p.n <= rows:
@@ -315,6 +330,10 @@ def render(e: Explanation, note: str = "") -> str:
         if c.fix.proven:
             out.append("       equivalence proven symbolically")
     out += ["", "Figures are estimates at sampled inputs (mpmath reference), not proofs."]
+    hint = how_to_apply(e)
+    if hint is not None:
+        out += ["", "to apply the best verified fix", f"    {hint['command']}",
+                f"    in an editor, the quick fix “{hint['quick_fix']}”"]
     return "\n".join(out) + "\n"
 
 
@@ -359,4 +378,5 @@ def as_dict(e: Explanation, note: str = "") -> dict[str, Any]:
                    "worst_measured": None if c.worst is None else round(c.worst, 2), "note": c.note or None,
                    "measured": floats(c.profile.measured) if c.profile else None} for c in e.candidates],
         "fixes_note": note or None,
+        "apply": how_to_apply(e),
     }
