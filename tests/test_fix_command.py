@@ -213,3 +213,18 @@ def test_imports_a_fix_made_unused_are_dropped(before, after, expected):
     from condhint.rewrites.apply import drop_unused_imports
 
     assert drop_unused_imports(before, after) == expected
+
+
+def test_check_before_the_fix_predicts_what_remains_after_it(fixed_demo):
+    # Issue 18: after `fix`, `check` reports only what it already reported as inherent (CH201) before, in the
+    # same functions; a loss "avoidable only for exact inputs" carries its inherent part as a CH201 from the start.
+    copy, _ = fixed_demo
+
+    def scopes(root: Path) -> set[tuple[str, str, str]]:
+        proc = subprocess.run([sys.executable, "-m", "condhint", "check", "--format", "json", "--jobs", "1", "marram"],
+                              cwd=root, capture_output=True, text=True, timeout=300)
+        return {(Path(f["path"]).name, f["scope"], f["code"]) for f in json.loads(proc.stdout)["findings"]}
+
+    before, after = scopes(DEMO), scopes(copy)
+    assert after and {code for _, _, code in after} == {"CH201"}
+    assert after <= before, after - before

@@ -29,7 +29,7 @@ from condhint.reading.statements import Walker
 from condhint.recurrence import Recurrence
 from condhint.site import Site
 from condhint.kinds import NOT_ANALYSED
-from condhint.site_findings import finding_for, not_analysed
+from condhint.site_findings import findings_for, not_analysed
 from condhint.symbolic import kappa_formula_text
 
 K, V = TypeVar("K"), TypeVar("V")
@@ -266,13 +266,11 @@ def analyse_unit(index: ModuleIndex, unit: Unit, key: str, path: str, cfg: Confi
                                          site.root.text))
             continue
         out.analyses[id(site)] = a
-        f = finding_for(site, a, cfg, path, origin=f"{key}#{number}", symbolic=index.symbolic_numbers)
-        if f is None:
-            continue
-        k = (f.span.line, f.span.col, f.span.end_line, f.span.end_col, f.code)
-        prev = best.get(k)
-        if prev is None or (f.digits_lost or 0) > (prev.digits_lost or 0):
-            best[k] = f
+        for f in findings_for(site, a, cfg, path, origin=f"{key}#{number}", symbolic=index.symbolic_numbers):
+            k = (f.span.line, f.span.col, f.span.end_line, f.span.end_col, f.code)
+            prev = best.get(k)
+            if prev is None or (f.digits_lost or 0) > (prev.digits_lost or 0):
+                best[k] = f
     # ---- loops read as recurrences (issue 15): measured by iterating them, `loop_findings.py` ----
     out.recurrences = walker.recurrences
     if walker.recurrences and budget.open():

@@ -22,12 +22,13 @@ class Fix:
     measured_digits_lost_before: float = 0.0
     rule: str = ""
     proven: bool = False  # equivalence proven symbolically (always also checked numerically)
+    note: str = ""  # a comment the fix leaves at the end of its line (where an approximation holds)
 
     def to_dict(self) -> dict[str, Any]:
         return {"title": self.title, "replacement": self.replacement, "line": self.span.line,
                 "column": self.span.col + 1, "end_line": self.span.end_line, "end_column": self.span.end_col + 1,
                 "imports": list(self.imports), "measured_digits_lost_after": round(self.measured_digits_lost_after, 2),
-                "rule": self.rule, "proven": self.proven}
+                "rule": self.rule, "proven": self.proven, **({"note": self.note} if self.note else {})}
 
 
 @dataclass

@@ -1,6 +1,9 @@
 """A site's analysis -> its finding (or none), placed on the operation that causes it."""
 from __future__ import annotations
 
+import math
+from dataclasses import replace
+
 from condhint.config import Config
 from condhint.expr import CONST, INPUT, Span, topological
 from condhint.findings import Finding, InputInfo
@@ -52,6 +55,25 @@ def finding_for(site: Site, a: Analysis, cfg: Config, path: str, origin: str = "
         fraction_affected=a.fraction, related=related, scope=site.scope, result_uncertainty=a.result_uncertainty,
         origin=origin, format=site.float_format.name,
     )
+
+
+def findings_for(site: Site, a: Analysis, cfg: Config, path: str, origin: str = "", symbolic: bool = False
+                 ) -> list[Finding]:
+    """The site's finding and, for a loss to rounding that the problem's own κ explains (avoidable only for
+    exact inputs), the inherent sensitivity too: it is what remains after a rewrite removes the avoidable part,
+    so `check` reports it before a fix as well as after."""
+    main = finding_for(site, a, cfg, path, origin, symbolic)
+    if main is None or a.category != "formula" or not a.worst_kappa or not math.isfinite(a.worst_kappa):
+        return [main] if main is not None else []
+    at_risk = min(math.log10(a.worst_kappa), site.float_format.digits) if a.worst_kappa > 1 else 0.0
+    if at_risk < (a.digits or 0) - 1:  # κ explains less than the loss: the loss is avoidable
+        return [main]
+    inherent = finding_for(site, replace(a, category="inherent", digits=at_risk, culprit=None), cfg, path, origin,
+                           symbolic)
+    if inherent is None:
+        return [main]
+    inherent = replace(inherent, span=main.span, expression=main.expression)
+    return [main, inherent]
 
 
 def not_analysed(path: str, span: Span, reason: str, scope: str = "", expression: str = "") -> Finding:

@@ -3,6 +3,7 @@ of findings with a verified fix, and `explain`'s hint on how to apply the best o
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 
 import pytest
@@ -164,12 +165,13 @@ def _marks_match_json(capsys, target: Path) -> int:
     """Check that `--mark-fixes` tags exactly the findings whose JSON `fixes` is not empty; the count."""
     _, out, _ = run(capsys, "check", "--mark-fixes", "-j", "1", str(target))
     _, doc, _ = run(capsys, "check", "--format", "json", "--min-severity", "warning", "-j", "1", str(target))
-    with_fix = {(f["path"], f["line"], f["column"]): bool(f["fixes"]) for f in json.loads(doc)["findings"]}
+    with_fix = {(f["path"], f["line"], f["column"], f["code"]): bool(f["fixes"]) for f in json.loads(doc)["findings"]}
     rows = [line for line in out.splitlines()[:-1] if ": note: " not in line]
     assert len(rows) == len(with_fix)
     for line in rows:
         path, ln, col = line.split(": ", 1)[0].rsplit(":", 2)
-        assert line.endswith("] [verified fix]") == with_fix[(path, int(ln), int(col))], line
+        code = re.search(r"\[(CH\d+)\]( \[verified fix\])?$", line).group(1)
+        assert line.endswith("] [verified fix]") == with_fix[(path, int(ln), int(col), code)], line
     n = sum(with_fix.values())
     summary = out.splitlines()[-1]
     assert summary.endswith(f"; {n} with a verified fix — run `condhint fix`" if n else "; none with a verified fix")

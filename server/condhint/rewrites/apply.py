@@ -4,8 +4,10 @@ line endings. Used by `condhint fix` and by the language server's fix-all."""
 from __future__ import annotations
 
 import ast
+import io
 import re
 import sys
+import tokenize
 from typing import Iterable
 
 from condhint.findings import Fix
@@ -56,8 +58,8 @@ def apply_fixes(text: str, fixes: Iterable[Fix]) -> str:
         return text
     newline = dominant_newline(text)
     starts = line_starts(text)
-    edits = sorted(((offset(text, starts, f.span.line, f.span.col), offset(text, starts, f.span.end_line, f.span.end_col),
-                     _NEWLINE.sub(newline, f.replacement)) for f in chosen), reverse=True)
+    edits = sorted([(offset(text, starts, f.span.line, f.span.col), offset(text, starts, f.span.end_line, f.span.end_col),
+                     _NEWLINE.sub(newline, f.replacement)) for f in chosen] + _note_edits(text, starts, chosen), reverse=True)
     out = text
     for start, end, repl in edits:
         out = out[:start] + repl + out[end:]
@@ -73,6 +75,29 @@ def apply_fixes(text: str, fixes: Iterable[Fix]) -> str:
     except SyntaxError as exc:
         raise ValueError(f"the fixes do not give valid Python: {exc.msg} at line {exc.lineno}") from None
     return drop_unused_imports(text, out)
+
+
+def _note_edits(text: str, starts: list[int], fixes: list[Fix]) -> list[tuple[int, int, str]]:
+    """Each fix's note as a comment at the end of its last line, where that line has no comment yet."""
+    notes = {f.span.end_line: f.note for f in fixes if f.note}
+    if not notes:
+        return []
+    comments = {tok.start[0] for tok in _tokens(text) if tok.type == tokenize.COMMENT}
+    out = []
+    for line, note in notes.items():
+        if line in comments or line > len(starts):
+            continue
+        end = starts[line] if line < len(starts) else len(text)
+        at = starts[line - 1] + len(text[starts[line - 1]:end].rstrip())
+        out.append((at, at, f"  # {note}"))
+    return out
+
+
+def _tokens(text: str) -> list[tokenize.TokenInfo]:
+    try:
+        return list(tokenize.generate_tokens(io.StringIO(text).readline))
+    except (tokenize.TokenError, SyntaxError):
+        return []
 
 
 def _loads(tree: ast.AST) -> set[str]:

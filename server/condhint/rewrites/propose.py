@@ -48,6 +48,7 @@ class Verified:
     evidence: Evidence
     cost: int
     order: int
+    note: str = ""
 
     def rank(self) -> tuple[float, int, int, int]:
         return (round(max(self.evidence.after, NOISE) * 2) / 2, self.cost, self.order, len(self.text))
@@ -56,7 +57,7 @@ class Verified:
         ev = self.evidence
         return Fix(title=self.title, replacement=self.text, span=self.span, imports=list(self.imports),
                    measured_digits_lost_after=ev.after, measured_digits_lost_before=ev.before, rule=self.rule,
-                   proven=ev.proven)
+                   proven=ev.proven, note=self.note)
 
 
 def targets(site: Site, finding: Finding, culprit: Node | None, replaceable: Callable[[Node], bool]) -> list[Node]:
@@ -93,6 +94,7 @@ class Proposal:
     cost: int
     order: int
     approximate: bool = False
+    note: str = ""
 
 
 # What a rule, the search or the measurement may raise on an expression it cannot handle: that candidate
@@ -128,7 +130,7 @@ def _searched(tgts: list[Node], ctx_for, deadline: Deadline) -> Iterator[Proposa
         except SKIPPED:
             continue
         for found in found_all:
-            yield Proposal(found.rule, found.title, t, found.replacement, 4, base + 10, True)
+            yield Proposal(found.rule, found.title, t, found.replacement, 4, base + 10, True, found.note)
 
 
 @dataclass(frozen=True)
@@ -205,7 +207,7 @@ def fixes_for(subject: Subject, cfg: Config, seconds: float = SECONDS_PER_FINDIN
             if ev.ok:
                 title = p.title.replace("{text}", text if len(text) <= 50 else text[:47] + "…")
                 verified.append(Verified(p.rule, title, p.target, replacement, text, imports, span, ev,
-                                         p.cost, p.order))
+                                         p.cost, p.order, p.note))
         verified.sort(key=Verified.rank)
         fixes = rechecked([v.fix() for v in verified], finding, subject.index, subject.reanalyse)
         if fixes:

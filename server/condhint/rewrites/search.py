@@ -21,6 +21,7 @@ from sympy.codegen import rewriting as sr
 
 from condhint.budget import OverBudget, run_with_budget
 from condhint.expr import CONST, INPUT, Node, topological
+from condhint.messages import num
 from condhint.numeric.backends import F64_BACKEND
 from condhint.numeric.evaluate import BudgetExceeded, Deadline, forward
 from condhint.numeric.formats import Format
@@ -40,6 +41,7 @@ class Found:
     title: str
     replacement: Node
     approximate: bool = False
+    note: str = ""  # left as a comment with the fix
 
 
 def _transform(name: str, expr: Any) -> Any:
@@ -187,7 +189,9 @@ def series(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Found]:
     worst, count, switch = best
     poly = series_node(chosen, u)
     if switch > hi:
-        yield Found("series", f"Use the Taylor series ({count} terms) on this small-argument range", poly, True)
+        name = _short(u)
+        yield Found("series", f"Use the Taylor series ({count} terms) on this small-argument range", poly, True,
+                    f"Taylor series: accurate for |{name}| <= {num(hi, 2)} (checked); not beyond")
         return
     cut = _nice_below(switch)
     cond = dag.compare(dag.call("abs", u), "<", dag.const(cut))
