@@ -62,3 +62,21 @@ def test_line_endings_and_a_missing_final_newline_are_kept():
 def test_a_result_that_would_not_parse_is_refused():
     with pytest.raises(ValueError):
         apply_fixes("y = a - b\n", [fix(1, 4, 9, "a -")])
+    # Also when the fix needs an import: the import is placed by parsing the text, which must not escape as a
+    # SyntaxError (a fix's recheck on a text that does not parse crashed `check` on networkx).
+    with pytest.raises(ValueError):
+        apply_fixes("y = (1 + x) ** 3\n@dec\n", [fix(1, 4, 16, "math.exp(3 * math.log1p(x))", "import math")])
+
+
+def test_fixes_in_a_module_whose_last_definition_is_decorated_do_not_crash_check():
+    # Found on networkx: the focused text of `zipf_rv` keeps the decorator of a blanked function after it, so it
+    # does not parse; the compound-power fix needs `import math`, and placing it raised SyntaxError out of `check`.
+    from condhint.config import Config
+    from condhint.runner import check_paths
+    from tests.trust.labelled_set import site_packages
+
+    path = site_packages() / "networkx" / "utils" / "random_sequence.py"
+    if not path.exists():
+        pytest.skip("networkx is not installed")
+    found = check_paths([str(path)], Config(), jobs=1, fixes=True, show_progress=False).findings
+    assert any(f.code == "CH101" and "** a1" in f.expression for f in found)

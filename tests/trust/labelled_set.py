@@ -11,7 +11,8 @@ from typing import Any, Iterable
 
 HERE = Path(__file__).parent
 LABELS = HERE / "labelled_real_code.json"
-FIXES = HERE / "labelled_fixes.json"
+FIXES = HERE / "labelled_fixes.json"  # round one: fixes of an older tool, kept as history
+FIXES_CURRENT = HERE / "labelled_fixes_current.json"  # fixes the tool offers now
 VERDICTS = ("real", "range-guess", "wrong")
 SEVERE = ("warning", "error")
 

@@ -54,7 +54,12 @@ _FUNCS: dict[str, tuple[Callable, Callable]] = {
     "cbrt": (mpmath.cbrt, np.cbrt),
     "erf": (mpmath.erf, math.erf), "erfc": (mpmath.erfc, math.erfc),
     "gamma": (mpmath.gamma, math.gamma), "lgamma": (lambda x: mpmath.log(abs(mpmath.gamma(x))), math.lgamma),
+    "radians": (lambda x: x * mpmath.pi / 180, math.radians), "degrees": (lambda x: x * 180 / mpmath.pi, math.degrees),
+    "where": (lambda c, a, b: a if c else b, lambda c, a, b: a if c else b),
 }
+# comparisons (the condition of `np.where`)
+_COMPARE = {ast.Lt: lambda a, b: a < b, ast.LtE: lambda a, b: a <= b, ast.Gt: lambda a, b: a > b,
+            ast.GtE: lambda a, b: a >= b}
 _CONSTS: dict[str, tuple[Callable[[], Number], float]] = {
     "pi": (lambda: +mpmath.pi, math.pi), "e": (lambda: +mpmath.e, math.e), "inf": (lambda: mpmath.inf, math.inf),
 }
@@ -108,6 +113,8 @@ class Evaluator:
             if isinstance(op, ast.Pow):
                 return a ** b
             raise Unsupported(type(op).__name__)
+        if isinstance(node, ast.Compare) and len(node.ops) == 1 and type(node.ops[0]) in _COMPARE:
+            return _COMPARE[type(node.ops[0])](self.value(node.left, env), self.value(node.comparators[0], env))
         if isinstance(node, ast.Call):
             name = _dotted(node.func)
             if name is None or node.keywords:

@@ -68,9 +68,9 @@ def apply_fixes(text: str, fixes: Iterable[Fix]) -> str:
         for imp in f.imports:
             if imp not in needed:
                 needed.append(imp)
-    for imp in needed:
-        out = add_import(out, imp)
     try:
+        for imp in needed:
+            out = add_import(out, imp)  # parses `out`: a text that does not parse is refused here too
         ast.parse(out)
     except SyntaxError as exc:
         raise ValueError(f"the fixes do not give valid Python: {exc.msg} at line {exc.lineno}") from None
