@@ -97,3 +97,22 @@ def test_no_math_rewrites_in_modules_that_handle_symbolic_values() -> None:
     symbolic = analysed(src.format(imp="import sympy\n"))
     attach_fixes(symbolic, Config())
     assert symbolic.report.findings and not symbolic.report.findings[0].fixes
+
+
+@pytest.mark.parametrize("guard, offered", [("if rotation > 90:\n        return 0.0", False),
+                                            ("if not 0 < rotation <= 90:\n        return 0.0", True)])
+def test_a_fix_that_turns_a_finite_result_infinite_at_zero_is_not_offered(guard: str, offered: bool) -> None:
+    # matplotlib's Text._get_dist_to_box (wrapped text, rotation = 0 by default): (y1 - y0) / cos(radians(90 - r)).
+    # cos(fl(pi/2)) = 6.1e-17 in binary64 (the C library, checked below), so the original is finite at r = 0;
+    # the rewrite with sin(pi*r/180) divides by an exact 0 and gives inf. Where the code allows r = 0 the rewrite
+    # changes what the code computes beyond rounding; where it establishes r > 0 it is right (and more accurate).
+    import math
+    assert math.cos(math.radians(90)) != 0.0 and math.sin(math.pi * 0 / 180) == 0.0
+    src = ("import math\n\ndef dist(rotation, y0, y1):\n    " + guard + "\n"
+           "    return (y1 - y0) / math.cos(math.radians(90 - rotation))\n")
+    from condhint.fixing import attach_fixes
+
+    ma = analysed(src)
+    attach_fixes(ma, Config())
+    fixes = [x.replacement for f in ma.report.findings for x in f.fixes]
+    assert any("math.sin(math.pi * rotation / 180)" in r for r in fixes) is offered, fixes

@@ -187,9 +187,10 @@ class Bench:
     def unsigned_disagreement(self, candidate_root: Node, idx: np.ndarray, tol: float,
                               deadline: Deadline | None) -> str | None:
         """Why the candidate is not equivalent at the other sign of inputs whose sign the code does not fix
-        (their range is assumed, and sampled positive), or None. The code may see either sign there."""
-        free = [k for k in self.names if self.ranges[k].source == "default" and not self.ranges[k].is_int
-                and bool(np.all(self.cols[k] >= 0))]
+        (their range is assumed, or bounded above only, and sampled positive), or at zero, or None. The code may
+        see either sign there."""
+        free = [k for k in self.names if (self.ranges[k].source == "default" or self.ranges[k].interval.low < 0)
+                and not self.ranges[k].is_int and bool(np.all(self.cols[k] >= 0))]
         if not free:
             return None
         pts = idx[:: max(1, len(idx) // 8)][:8]
@@ -214,6 +215,13 @@ class Bench:
                     if _ordinary(r, self.format) and \
                             max(self._lost(float(b), r), NOISE) - max(self._lost(float(a), r), NOISE) > MAX_WORSE:
                         return f"less accurate than the original where {names} < 0, which the code allows"
+        for k in free:  # zero, which the code does not exclude either: a finite result must stay finite
+            cols = {n: (np.zeros(len(pts)) if n == k else v[pts]) for n, v in self.cols.items()}
+            with np.errstate(all="ignore"):
+                o64 = forward(topological(self.site.root), cols, F64_BACKEND, len(pts))[id(self.site.root)]
+                c64 = forward(topological(candidate_root), cols, F64_BACKEND, len(pts))[id(candidate_root)]
+            if np.any(np.isfinite(o64) & ~np.isfinite(c64)):
+                return f"gives inf or nan where {k} = 0, which the code allows, while the original stays finite"
         return None
 
     def _lost(self, approx: float, exact: Any) -> float:
