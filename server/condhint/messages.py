@@ -27,7 +27,7 @@ def num(x: float | None, digits: int = 2) -> str:
 
 def pct(fraction: float) -> str:
     p = 100 * fraction
-    return f"{p:.0f}%" if p >= 1 else f"{p:.1g}%"
+    return f"{num(p)}%" if p >= 1e4 else f"{p:.0f}%" if p >= 1 else f"{p:.1g}%"
 
 
 def digits(x: float | None) -> str:
