@@ -86,8 +86,9 @@ def kappa_expression(expr: sp.Expr, symbols: dict[str, sp.Symbol]) -> sp.Expr:
         q = sp.cancel(s * sp.diff(expr, s) / expr)
         t = sp.factor_terms(q)
         if len(sp.sstr(t)) <= SIMPLIFY_UP_TO:
-            full = sp.simplify(q)
-            t = full if len(sp.sstr(full)) <= len(sp.sstr(t)) else t
+            # the shortest of: common factors pulled out, `simplify`, and radicals out of the denominator then
+            # factored (sqrt(n + 1) - sqrt(n) gives -sqrt(n)/(2*sqrt(n + 1)), which `simplify` alone misses)
+            t = min((t, sp.simplify(q), sp.factor(sp.radsimp(q))), key=lambda e: len(sp.sstr(e)))
         if t != 0:
             terms.append(sp.Abs(t))
     return sp.Add(*terms) if terms else sp.Integer(0)

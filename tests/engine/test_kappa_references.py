@@ -132,3 +132,26 @@ def test_the_symbolic_kappa_formula_agrees_with_closed_forms(expr, x, closed, so
     k = kappa_expression(sym, symbols)
     value = float(k.evalf(30, subs={symbols["x"]: x}))
     assert value == pytest.approx(closed(x), rel=1e-9), source
+
+
+@pytest.mark.parametrize("expr, shown", [
+    ("math.sqrt(x + 1) - math.sqrt(x)", "sqrt(x)/(2*sqrt(x + 1))"),  # x/(2 sqrt(x) sqrt(x+1)), derivable
+    ("1.0 / x - 1.0 / (x + 1)", "(2*x + 1)/(x + 1)"),                # derivable
+])
+def test_the_displayed_kappa_formula_is_simplified_and_equal_to_sympys_own(expr, shown):
+    # Issue 18: hover and JSON show κ the way a person would write it, and it is the same function as the raw
+    # Σ|xᵢ ∂f/∂xᵢ / f| that sympy computes (their difference simplifies to 0; checked at points with evalf too).
+    import sympy as sp
+
+    from condhint.symbolic import kappa_formula_text, to_sympy
+
+    src = f"import math\ndef f(x):  # condhint: 1 <= x <= 1e6\n    return {expr}\n"
+    (site,) = analyse_module(src, "t.py", Config(), cache=None).sites
+    text = kappa_formula_text(site.root, {"x"})
+    assert text == shown
+    sym, symbols = to_sympy(site.root, {"x"})
+    x = symbols["x"]
+    raw = abs(x * sp.diff(sym, x) / sym)
+    displayed = sp.sympify(text, locals={"x": x})  # our own output, in a test
+    assert sp.simplify(displayed - raw) == 0 or all(
+        abs(float((displayed - raw).evalf(30, subs={x: v}))) < 1e-20 for v in (1.5, 10.0, 1e3, 1e6))
