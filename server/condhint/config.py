@@ -66,6 +66,7 @@ class Config:
     fixes: bool = True
     inlay_hints: bool = False
     debounce_ms: int = 50
+    fix_wait_ms: int = 3000  # how long a code-action request waits for the fix search before saying it is running
     per_path: tuple[tuple[str, Mapping[str, Any]], ...] = ()
 
     def for_path(self, path: str) -> "Config":
@@ -114,10 +115,10 @@ def _check(cfg: Config, key: str, value: Any) -> Config:
         if not lo < hi or (key == "array_length" and lo < 1):
             raise ValueError("need low < high" + (" and low >= 1" if key == "array_length" else ""))
         return replace(cfg, **{key: (lo, hi)})
-    if key in ("samples", "reference_samples", "max_site_nodes", "debounce_ms"):
+    if key in ("samples", "reference_samples", "max_site_nodes", "debounce_ms", "fix_wait_ms"):
         if isinstance(value, bool) or not isinstance(value, int):
             raise ValueError("expected a whole number")
-        lo = {"samples": 8, "reference_samples": 4, "max_site_nodes": 10, "debounce_ms": 0}[key]
+        lo = {"samples": 8, "reference_samples": 4, "max_site_nodes": 10, "debounce_ms": 0, "fix_wait_ms": 0}[key]
         if not lo <= value <= 100_000:
             raise ValueError(f"expected a whole number from {lo} to 100000")
         return replace(cfg, **{key: value})

@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import ast
+import asyncio
 
 import pytest
 from lsprotocol import types
@@ -133,3 +134,24 @@ async def test_range_action_gives_tab_stops_to_clients_that_take_snippet_edits(l
     edit = await edited(client, declare)
     snippets = [e for c in edit.document_changes for e in c.edits if isinstance(e, types.SnippetTextEdit)]
     assert [e.snippet.value for e in snippets] == ["  # condhint: ${1:low} <= n <= ${2:high}"]
+
+
+async def test_a_fix_still_being_searched_is_shown_not_silently_missing(lsp, tmp_path):
+    # With no wait for the search (as on a loaded machine), the first request cannot include the fix: VS Code,
+    # which shows disabled actions, gets one saying the search runs; asking again offers the verified fix.
+    client = await lsp(VSCODE, init_options={"debounceMs": 10, "fixWaitMs": 0})
+    assert client.capabilities.text_document.code_action.disabled_support
+    uri, diags = await open_and_wait(client, tmp_path / "growth.py", GROWTH)
+    rng = range_of(GROWTH, "exp(rate * dt) - 1", encoding_of(client))
+    target = [d for d in diags if d.range == rng]
+    first = await actions_at(client, uri, rng, target, only=[types.CodeActionKind.QuickFix])
+    searching = [a for a in first if a.disabled is not None]
+    assert [a.title for a in searching] == ["condhint: still searching for a verified fix (ask again in a moment)"]
+    assert not [a for a in first if a.is_preferred]
+    for _ in range(300):  # the search finishes in the background; a later request offers its result
+        await asyncio.sleep(0.2)
+        again = await actions_at(client, uri, rng, target, only=[types.CodeActionKind.QuickFix])
+        if any(a.is_preferred for a in again):
+            break
+    assert any(a.is_preferred and "digits" in a.title for a in again)
+    assert not [a for a in again if a.disabled is not None]

@@ -27,7 +27,6 @@ log = logging.getLogger(__name__)
 
 HOVER_WAIT = 5.0  # seconds a hover waits for the analysis of the current text
 FORMULA_WAIT = 0.15  # seconds a hover waits for a κ formula that is not ready (it is shown on the next hover)
-FIX_WAIT = 3.0  # seconds a code action request waits for the rewrite search of a finding
 CONFIG_WAIT = 5.0
 
 
@@ -228,10 +227,15 @@ async def code_actions(ls: "CondhintServer", params: types.CodeActionParams) -> 
     findings = actions.findings_in(result, start, end, fingerprints)
     cfg = _cfg(ls, state)
     plans: list[actions.Plan] = []
+    searching: list = []
     fixing = ls.settings.config.fixes and rewrites() is not None
     if fixing and actions.wanted(actions.QUICKFIX, only):
         for f in findings:
-            plans += actions.fix_plans(state.text, f, await _fixes(ls, result, f, cfg))
+            fixes = await _fixes(ls, result, f, cfg)
+            if fixes is None:
+                searching.append(f)
+            else:
+                plans += actions.fix_plans(state.text, f, fixes)
     if fixing and actions.wanted(actions.FIX_ALL, only):
         chosen = []
         for f in result.findings:
@@ -257,17 +261,35 @@ async def code_actions(ls: "CondhintServer", params: types.CodeActionParams) -> 
         else:
             action.edit = _edit(ls, state, p)
         out.append(action)
+    out += _still_searching(ls, searching, diagnostics)
     return out
 
 
-async def _fixes(ls: "CondhintServer", result, finding, cfg) -> list:  # noqa: ANN001
+def _still_searching(ls: "CondhintServer", findings: list, diagnostics: dict) -> list[types.CodeAction]:
+    """A fix whose search has not finished is never silently missing: clients that show disabled actions get
+    one saying so; the others get a message. Asking again offers the fix once it is verified."""
+    if not findings:
+        return []
+    title = "condhint: still searching for a verified fix (ask again in a moment)"
+    if ls.client_has("text_document.code_action.disabled_support"):
+        return [types.CodeAction(title=title, kind=types.CodeActionKind.QuickFix,
+                                 diagnostics=[diagnostics[f.fingerprint()] for f in findings
+                                              if f.fingerprint() in diagnostics] or None,
+                                 disabled=types.CodeActionDisabled(reason="the search is still running"))]
+    ls.window_show_message(types.ShowMessageParams(type=types.MessageType.Info, message=title))
+    return []
+
+
+async def _fixes(ls: "CondhintServer", result, finding, cfg) -> list | None:  # noqa: ANN001
+    """The finding's verified fixes, waiting up to `fix_wait_ms` for their search; None while it still runs."""
     ready, fixes = ls.background.fixes_of(finding)
     if ready:
         return fixes
     try:
-        await asyncio.wait_for(asyncio.shield(ls.background.want_fixes(finding, result, cfg)), FIX_WAIT)
+        await asyncio.wait_for(asyncio.shield(ls.background.want_fixes(finding, result, cfg)),
+                               cfg.fix_wait_ms / 1000.0)
     except asyncio.TimeoutError:
-        return []  # still searching: offered on a later request
+        return None
     return ls.background.fixes_of(finding)[1]
 
 
