@@ -1,4 +1,5 @@
-"""`explain --plot FILE.png`: digits lost against one input over its range, as written and for each fix.
+"""`explain --plot FILE.png`: correct digits kept against one input over its range — as written, for each fix,
+and the most any formula can keep there (the κ limit); the area between is the avoidable loss.
 
 matplotlib is an optional extra (`pip install 'condhint[plot]'`); the Agg canvas is used directly, so no
 display and no global pyplot state are involved.
@@ -9,9 +10,13 @@ import math
 
 import numpy as np
 
+from condhint.messages import num
 from condhint.review.explain import Explanation
 
-COLOURS = ["#1b9e77", "#7570b3", "#e7298a", "#66a61e", "#e6ab02"]
+# Okabe & Ito's colour-blind-safe palette (2008); lines also differ by style, so they read in grey too.
+LIMIT, AS_WRITTEN, AVOIDABLE = "#000000", "#D55E00", "#E69F00"
+FIX_COLOURS = ["#0072B2", "#009E73", "#CC79A7", "#56B4E9"]
+FIX_STYLES = ["-", "-.", (0, (5, 1, 1, 1)), (0, (1, 1))]
 
 
 class PlotUnavailable(Exception):
@@ -37,6 +42,8 @@ def _short(text: str, limit: int = 60) -> str:
 
 
 def plot(e: Explanation, file: str, thresholds: tuple[float, float, float] = (2.0, 4.0, 8.0)) -> None:
+    """Digits the formula keeps against the most any formula can keep at those inputs (the κ limit:
+    all digits less log₁₀ κ): the area between the two curves is the avoidable loss; the fixes are drawn too."""
     try:
         from matplotlib.backends.backend_agg import FigureCanvasAgg
         from matplotlib.figure import Figure
@@ -48,32 +55,45 @@ def plot(e: Explanation, file: str, thresholds: tuple[float, float, float] = (2.
     xs = p.cols[e.swept]
     order = np.argsort(xs)
     xs = xs[order]
-    fig = Figure(figsize=(7.5, 4.6), dpi=110)
+    total = e.total_digits
+    with np.errstate(all="ignore"):
+        at_risk = np.minimum(np.log10(np.maximum(np.nan_to_num(p.kappa, nan=1.0), 1.0)), total)[order]
+    limit = total - at_risk
+    kept = np.clip(total - p.measured[order], 0.0, total)
+    fig = Figure(figsize=(7.5, 4.8), dpi=110)
     FigureCanvasAgg(fig)
     ax = fig.add_subplot(1, 1, 1)
     for t, label in zip(thresholds, ("info", "warning", "error")):
-        ax.axhline(t, color="#bbbbbb", linewidth=0.8, linestyle="-", zorder=0)
-        ax.text(1.005, t, label, transform=ax.get_yaxis_transform(), fontsize=7, color="#888888", va="center")
-    ax.plot(xs, p.measured[order], color="#d95f02", linewidth=2.0, label="as written: measured (vs mpmath)")
-    ax.plot(xs, p.predicted[order], color="#d95f02", linewidth=1.0, linestyle="--",
-            label="as written: predicted (rounding amplification)")
-    with np.errstate(all="ignore"):
-        risk = np.log10(np.maximum(np.nan_to_num(p.kappa, nan=1.0), 1.0))
-    ax.plot(xs, np.minimum(risk, e.total_digits)[order], color="#555555", linewidth=1.0, linestyle=":",
-            label="log₁₀ κ: digits at risk from input errors")
+        ax.axhline(total - t, color="#cccccc", linewidth=0.8, zorder=0)
+        ax.text(1.005, total - t, f"{label}: {t:g} lost", transform=ax.get_yaxis_transform(), fontsize=7,
+                color="#777777", va="center")
+    ax.fill_between(xs, kept, limit, where=limit > kept, color=AVOIDABLE, alpha=0.35, linewidth=0,
+                    label="avoidable loss (a better formula keeps these digits)")
+    ax.plot(xs, limit, color=LIMIT, linewidth=1.6, linestyle="--",
+            label="the most any formula can keep here (limit set by κ)")
+    ax.plot(xs, kept, color=AS_WRITTEN, linewidth=2.2, label="this code keeps (measured against mpmath)")
     for i, c in enumerate(x for x in e.candidates if x.profile is not None):
         ys = c.profile.measured
         if len(ys) == len(order):
-            ax.plot(xs, ys[order], color=COLOURS[i % len(COLOURS)], linewidth=1.8,
-                    label=f"fix: {_short(c.fix.replacement, 48)}")
+            ax.plot(xs, np.clip(total - ys[order], 0.0, total), color=FIX_COLOURS[i % len(FIX_COLOURS)],
+                    linewidth=1.6, linestyle=FIX_STYLES[i % len(FIX_STYLES)],
+                    label=f"with the fix {_short(c.fix.replacement, 44)}")
+    r = e.site.ranges.get(e.swept)
+    declared = r is not None and r.source.startswith("comment")
+    lo, hi = float(xs[0]), float(xs[-1])
+    for edge in (lo, hi):
+        ax.axvline(edge, color="#777777", linewidth=0.8, linestyle=(0, (2, 2)))
+    ax.text(0.5, 1.01, f"{'declared' if declared else 'assumed (a guess: declare it)'} range of {e.swept}: "
+            f"[{num(lo, 3)}, {num(hi, 3)}]", transform=ax.transAxes, fontsize=7.5, ha="center", va="bottom",
+            color="#444444")
     scale, kw = _scale(xs)
     ax.set_xscale(scale, **kw)
-    ax.set_ylim(-0.4, math.ceil(e.total_digits) + 0.6)
-    ax.set_xlabel(e.swept + ("   (other inputs at the worst case)" if e.held else ""))
-    ax.set_ylabel(f"digits lost (of {e.total_digits:.0f}, {e.site.float_format.name})")
-    ax.set_title(_short(e.site.root.text, 70), fontsize=10, family="monospace")
+    ax.set_ylim(-0.4, math.ceil(total) + 0.6)
+    ax.set_xlabel(e.swept + ("   (other inputs held at the worst case)" if e.held else ""))
+    ax.set_ylabel(f"correct digits kept (of {total:.0f}, {e.site.float_format.name})")
+    fig.suptitle(_short(e.site.root.text, 70), fontsize=10, family="monospace")
     ax.grid(True, which="major", color="#eeeeee", linewidth=0.6)
-    ax.legend(fontsize=7.5, loc="best", framealpha=0.9)
-    fig.text(0.01, 0.01, "condhint explain — estimates at sampled inputs, not proofs", fontsize=6.5, color="#888888")
+    ax.legend(fontsize=7.2, loc="lower left", framealpha=0.92)
+    fig.text(0.01, 0.01, "condhint explain — estimates at sampled inputs, not proofs", fontsize=6.5, color="#777777")
     fig.tight_layout()
     fig.savefig(file, format="png")
