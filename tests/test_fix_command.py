@@ -228,3 +228,33 @@ def test_check_before_the_fix_predicts_what_remains_after_it(fixed_demo):
     before, after = scopes(DEMO), scopes(copy)
     assert after and {code for _, _, code in after} == {"CH201"}
     assert after <= before, after - before
+
+
+GENERATED = [  # classic formulas (Goldberg 1991; Higham 2002), each with its declared range
+    ("import math\ndef f(x):  # condhint: 1e-12 <= x <= 1e-3\n    return math.exp(x) - 1\n"),
+    ("import math\ndef f(x):  # condhint: 1e-12 <= x <= 1e-3\n    return math.log(1 + x)\n"),
+    ("import math\ndef f(x):  # condhint: 1e6 <= x <= 1e15\n    return math.sqrt(x + 1) - math.sqrt(x)\n"),
+    ("import math\ndef f(x):  # condhint: 1e-8 <= x <= 1e-2\n    return 1 - math.cos(x)\n"),
+    ("def f(n):  # condhint: 1e3 <= n <= 1e9\n    return 1.0 / n - 1.0 / (n + 1)\n"),
+    ("import math\ndef f(a, b):  # condhint: 1e6 <= a <= 1.001e6, 1e6 <= b <= 1.001e6\n"
+     "    return math.log(a) - math.log(b)\n"),
+    ("def f(a, b):  # condhint: 9.99e5 <= a <= 1.001e6, 9.99e5 <= b <= 1.001e6\n    return a / b - 1\n"),
+]
+
+
+@pytest.mark.parametrize("src", GENERATED, ids=range(len(GENERATED)))
+def test_check_after_fix_reports_only_what_was_reported_as_inherent(src, tmp_path, capsys):
+    path = tmp_path / "m.py"
+    path.write_text(src)
+
+    def found() -> set[tuple[str, str]]:
+        out = tmp_path / "r.json"
+        main(["check", str(path), "--format", "json", "--output", str(out), "-j", "1"])
+        return {(f["scope"], f["code"]) for f in json.loads(out.read_text())["findings"]}
+
+    before = found()
+    assert any(code == "CH101" for _, code in before), before  # each case loses digits as written
+    main(["fix", str(path)])
+    capsys.readouterr()
+    after = found()
+    assert {code for _, code in after} <= {"CH201"} and after <= before, (before, after, path.read_text())
