@@ -5,7 +5,7 @@ import math
 from dataclasses import dataclass
 
 from condhint.config import Config
-from condhint.expr import Node
+from condhint.expr import INPUT, Node, topological
 from condhint.numeric.formats import BINARY64, Format
 from condhint.numeric.analysis import Analysis
 from condhint.numeric.operations import OPERATIONS
@@ -46,6 +46,13 @@ def counted_in(fmt: Format) -> str:
 
 def in_format(fmt: Format) -> str:
     return "" if fmt is BINARY64 else f" in {fmt.short}"
+
+
+def at_point(m: "Facts") -> str:
+    """The worst point, naming only the inputs of the flagged operation (the others play no part in its loss)."""
+    own = {n.name for n in topological(m.flagged) if n.kind == INPUT}
+    at = {k: v for k, v in m.analysis.worst_at.items() if k in own} or m.analysis.worst_at
+    return where(at)
 
 
 def code(text: str) -> str:
@@ -90,7 +97,7 @@ def formula_message(m: Facts) -> str:
     head = (f"Loses {digits(a.digits)} of {counted_in(m.site.float_format)}, "
             + (f"avoidable (κ ≈ {num(a.worst_kappa)})." if avoidable else
                f"avoidable only for exact inputs (κ ≈ {num(a.worst_kappa)})."))
-    return (f"{head} {code(flagged.text)} at {where(a.worst_at)}: {what} (predicted {digits(a.worst_predicted)} "
+    return (f"{head} {code(flagged.text)} at {at_point(m)}: {what} (predicted {digits(a.worst_predicted)} "
             "digits). "
             + ("The result itself is well-conditioned, so a rewrite of the formula can keep these digits"
                if avoidable else
@@ -118,7 +125,7 @@ def overflow_message(m: Facts) -> str:
     returns = "0, inf or nan" if a.underflow or m.flagged.kind in REDUCTIONS else "inf or nan"
     head = ("Intermediate underflow to 0" if a.underflow else "Intermediate overflow to inf") + in_format(m.flagged.format)
     return (f"{head}: returns {returns} for an ordinary result. "
-            f"{code(m.flagged.text)} {what} at {where(a.worst_at)} although the result of "
+            f"{code(m.flagged.text)} {what} at {at_point(m)} although the result of "
             f"{code(m.site.root.text)} is an ordinary number there.")
 
 
@@ -129,9 +136,9 @@ def domain_message(m: Facts) -> str:
     if a.category == "domain-range":
         whose = "declared" if all(src.startswith("comment") for src in a.sources.values()) else "inputs'"
         return (f"Undefined{dom} on {pct(a.undefined_fraction)} of the {whose} range. {code(flagged.text)} "
-                f"leaves the function's domain at {where(a.worst_at)}.")
+                f"leaves the function's domain at {at_point(m)}.")
     return (f"Rounding leaves the domain{dom}: returns nan where the formula is defined. Rounding pushes the "
-            f"argument of {code(flagged.text)} outside its domain at {where(a.worst_at)}.")
+            f"argument of {code(flagged.text)} outside its domain at {at_point(m)}.")
 
 
 FIX_NOTE = "; fix available."

@@ -74,3 +74,10 @@ def test_one_number_style(x: float, text: str) -> None:
 def test_no_message_of_the_demo_mixes_number_styles(tmp_path: Path) -> None:
     for f in report(tmp_path, str(DEMO)):
         assert not re.search(r"\de[+-]0|\de\+", f["message"]), f["message"]
+
+
+def test_a_message_names_only_the_inputs_of_the_operation_that_loses(tmp_path: Path) -> None:
+    # tether * (1 - cos(theta)): the loss is in 1 - cos(theta) (Goldberg 1991); tether plays no part in it.
+    found = report(tmp_path, str(DEMO / "mooring.py"))
+    (f,) = [f for f in found if f["expression"] == "1 - cos(theta)"]
+    assert "theta ≈" in f["message"] and "tether" not in f["message"], f["message"]
