@@ -125,3 +125,15 @@ async def test_hover_names_where_each_range_came_from(lsp, tmp_path):
     uri = await opened(client, tmp_path, undeclared, "step.py")
     md = (await hover_at(client, uri, undeclared, " - math", offset=1)).contents.value
     assert "`n ∈ [1.00e-6, 1.00e6]` from an assumed range (the default" in md  # marked as a guess (issue: trust)
+
+
+async def test_the_kappa_formula_is_ready_at_the_first_hover_on_the_demo(lsp, tmp_path):
+    # Issue 18: on the demo, the first hover over a flagged expression (half a second after its diagnostics)
+    # shows the κ formula, not "being derived": a hover waits up to 1 s for a formula already being derived. κ of sqrt(n + 1) - sqrt(n) is
+    # n / (2 sqrt(n) sqrt(n + 1)) = sqrt(n)/(2 sqrt(n + 1)) (derivable).
+    client = await lsp(VSCODE, init_options={"debounceMs": 10})
+    text = (DEMO / "counting.py").read_text()
+    uri = await opened(client, tmp_path, text, "counting.py")
+    await asyncio.sleep(0.5)
+    h = await hover_at(client, uri, text, "math.sqrt(n + 1) - math.sqrt(n)", offset=18)
+    assert "κ formula: `sqrt(n)/(2*sqrt(n + 1))`" in h.contents.value, h.contents.value

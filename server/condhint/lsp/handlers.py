@@ -26,7 +26,7 @@ if TYPE_CHECKING:
 log = logging.getLogger(__name__)
 
 HOVER_WAIT = 5.0  # seconds a hover waits for the analysis of the current text
-FORMULA_WAIT = 0.15  # seconds a hover waits for a κ formula that is not ready (it is shown on the next hover)
+FORMULA_WAIT = 1.0  # seconds a hover waits for a κ formula that is not ready (else it says so; shown on the next hover)
 CONFIG_WAIT = 5.0
 
 
