@@ -258,3 +258,19 @@ def test_check_after_fix_reports_only_what_was_reported_as_inherent(src, tmp_pat
     capsys.readouterr()
     after = found()
     assert {code for _, code in after} <= {"CH201"} and after <= before, (before, after, path.read_text())
+
+
+def test_fix_and_check_report_the_same_digits(fixed_demo, tmp_path, capsys):
+    # The "before" figure `fix` prints is the finding's own, as `check` reported it (issue 18).
+    import re
+
+    _, out = fixed_demo
+    report = tmp_path / "r.json"
+    main(["check", str(DEMO / "marram"), "--format", "json", "--output", str(report), "-j", "1"])
+    capsys.readouterr()
+    checked = {(Path(f["path"]).name, f["line"], f["code"]): f["digits_lost"]
+               for f in json.loads(report.read_text())["findings"]}
+    lines = re.findall(r"(\w+\.py):(\d+):\d+: fixed (CH\d+): .*\(digits lost ([\d.]+) →", out)
+    assert len(lines) == 13
+    for name, line, code, before in lines:
+        assert abs(float(before) - checked[(name, int(line), code)]) <= 0.051, (name, line, before)

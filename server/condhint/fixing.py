@@ -76,5 +76,5 @@ def quick_fix_title(fix: Fix, finding: Finding) -> str:
     measured improvement (the rewrite engine's titles usually say it)."""
     if "digit" in fix.title:
         return fix.title
-    before = fix.measured_digits_lost_before or finding.digits_lost or 0.0
+    before = finding.digits_lost if finding.digits_lost is not None else fix.measured_digits_lost_before
     return f"{fix.title} (loses {fix.measured_digits_lost_after:.1f} instead of {before:.1f} digits, measured)"

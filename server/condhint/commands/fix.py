@@ -215,8 +215,9 @@ def _summary(results: list[FileResult], diff: bool) -> None:
     for r in results:
         for f, fix in r.applied:
             verb = "would fix" if diff else "fixed"
+            before = f.digits_lost if f.digits_lost is not None else fix.measured_digits_lost_before  # as `check` says
             print(f"{r.shown}:{f.span.line}:{f.span.col + 1}: {verb} {f.code}: {fix.title} (digits lost "
-                  f"{fix.measured_digits_lost_before:.1f} → {fix.measured_digits_lost_after:.1f}, measured)", file=out)
+                  f"{before:.1f} → {fix.measured_digits_lost_after:.1f}, measured)", file=out)
     left = sum(len(r.unfixed) for r in results)
     verb = "would be applied" if diff else "applied"
     summary = f"{n} fix{'es' if n != 1 else ''} {verb} in {files} file{'s' if files != 1 else ''}"
