@@ -119,3 +119,15 @@ def test_explain_a_demo_finding_with_several_inputs(capsys):
     assert code == 0, err
     assert "across the range of n (other inputs at the worst case:" in out
     assert "CH101" in out
+
+
+def test_explain_names_the_findings_operation_before_the_rounding_it_magnifies(tmp_path: Path, capsys):
+    # Issue 18: explain and the finding agree on the operation responsible (the cancelling subtraction of
+    # sqrt(x + 1) - sqrt(x), Goldberg 1991); the ranked list is the rounding that operation magnifies.
+    src = tmp_path / "step.py"
+    src.write_text(SQRT_DIFF)
+    code, out, _ = cli(capsys, "explain", f"{src}:5:12")
+    assert code == 0
+    lines = out.splitlines()
+    i = lines.index(next(x for x in lines if x.startswith("where rounding is magnified")))
+    assert lines[i + 1].startswith("    the finding's operation: `math.sqrt(x + 1) - math.sqrt(x)`"), lines[i + 1]

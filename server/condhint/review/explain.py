@@ -308,6 +308,9 @@ def render(e: Explanation, note: str = "") -> str:
         worst = int(np.nanargmax(np.nan_to_num(p.measured, nan=-1.0))) if p.n else 0
         at = ", ".join(f"{k} = {num(float(v[worst]), 3)}" for k, v in p.cols.items())
         out += ["", f"where rounding is magnified (at {at}; u = {cfg_u(total)})"]
+        if e.finding is not None:  # the same operation the finding names, then whose rounding it magnifies
+            out.append(f"    the finding's operation: `{' '.join(e.finding.expression.split())}` at "
+                       f"{e.line_label(e.finding.span.line)}:{e.finding.span.col + 1}; the rounding it magnifies:")
         for i, c in enumerate(e.contributions, 1):
             where = f"{e.line_label(c.span.line)}:{c.span.col + 1}" if c.span else "-"
             out.append(f"    {i}. {c.label:<14} `{' '.join(c.text.split())}` at {where}: error ×{num(c.amplification)}"
