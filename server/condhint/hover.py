@@ -55,6 +55,7 @@ class HoverFacts:
     measured: float | None
     total_digits: float
     samples: int
+    asked: int = 0  # the samples the settings ask for (the ranges' corners are added, guarded points dropped)
     limiting: str | None  # which operation limits accuracy, in words
     limiting_line: int | None
     inputs: list[InputFacts] = field(default_factory=list)
@@ -94,7 +95,8 @@ def describe(site: Site, node: Node, analysis: Analysis, cfg: Config, finding: F
     return HoverFacts(
         text=" ".join(node.text.split()), kappa=analysis.kappa, kappa_median=analysis.kappa_median,
         kappa_at=analysis.kappa_at, predicted=analysis.predicted, measured=analysis.measured,
-        total_digits=node.format.digits, format=node.format.name, samples=analysis.n_samples, limiting=limiting,
+        total_digits=node.format.digits, format=node.format.name, samples=analysis.n_samples, asked=cfg.samples,
+        limiting=limiting,
         limiting_line=limiting_line, inputs=inputs, result_uncertainty=analysis.result_uncertainty,
         finding=finding)
 
@@ -159,7 +161,9 @@ def markdown(facts: HoverFacts) -> str:
         out.append("- κ formula: being derived in the background (hover again)")
     elif facts.formula_state == "unavailable":
         out.append("- κ formula: not available (sympy gave no result within the time budget)")
-    out += ["", f"_Estimates over {facts.samples} sampled inputs, not guarantees._"]
+    how = "" if facts.samples == facts.asked or not facts.asked else (
+        f" ({facts.asked} asked for, with the ranges' corners, less points the guards exclude)")
+    out += ["", f"_Estimates over {facts.samples} sampled inputs{how}, not guarantees._"]
     return "\n".join(out)
 
 
