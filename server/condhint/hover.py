@@ -55,7 +55,6 @@ class HoverFacts:
     measured: float | None
     total_digits: float
     samples: int
-    asked: int = 0  # the samples the settings ask for (the ranges' corners are added, guarded points dropped)
     limiting: str | None  # which operation limits accuracy, in words
     limiting_line: int | None
     inputs: list[InputFacts] = field(default_factory=list)
@@ -65,6 +64,7 @@ class HoverFacts:
     formula: str | None = None
     format: str = "binary64"  # the format the expression's result computes in (a `numeric.formats` name)
     formula_state: str = "off"  # "ready", "pending", "unavailable", "off"
+    asked: int = 0  # the samples the settings ask for (the ranges' corners are added, guarded points dropped)
 
 
 def _label(node: Node) -> str:
