@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import ast
 import asyncio
+import re
 
 import pytest
 from lsprotocol import types
@@ -155,3 +156,29 @@ async def test_a_fix_still_being_searched_is_shown_not_silently_missing(lsp, tmp
             break
     assert any(a.is_preferred and "digits" in a.title for a in again)
     assert not [a for a in again if a.disabled is not None]
+
+
+async def test_fix_all_right_after_opening_waits_for_the_searches_or_says_what_is_missing(lsp, tmp_path):
+    # Issue 18: fix-all never silently drops a fix whose search is still running. Asked at once after the
+    # diagnostics, it waits for the searches (fixWaitMs); with no wait, what is not in it is said: in its title
+    # ("(1 still searching)") or, with nothing ready yet, as a disabled "still searching" action.
+    client = await lsp(NEOVIM_07, init_options={"debounceMs": 10})
+    uri, diags = await open_and_wait(client, tmp_path / "growth.py", GROWTH)
+    whole = types.Range(start=types.Position(line=0, character=0), end=types.Position(line=0, character=0))
+    (act,) = await actions_at(client, uri, whole, [], only=["source.fixAll"])
+    assert act.title == "Apply 2 verified condhint rewrites", act.title
+
+    other = tmp_path / "other"
+    other.mkdir()
+    hurried = await lsp(VSCODE, init_options={"debounceMs": 10, "fixWaitMs": 0}, root=other)
+    uri2, _ = await open_and_wait(hurried, other / "growth.py", GROWTH)
+    acts = await actions_at(hurried, uri2, whole, [], only=["source.fixAll"])
+    accounted = 0
+    for a in acts:
+        m = re.fullmatch(r"Apply (\d+) verified condhint rewrites?(?: \((\d+) still searching\))?", a.title)
+        if m:
+            accounted += int(m.group(1)) + int(m.group(2) or 0)
+        else:
+            assert a.disabled is not None and "still searching" in a.title, a
+            accounted = 2
+    assert accounted == 2, [a.title for a in acts]

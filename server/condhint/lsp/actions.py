@@ -62,8 +62,9 @@ def fix_plans(text: str, finding: Finding, fixes: list[Fix]) -> list[Plan]:
                  _applied(text, [fix]), preferred=(i == 0)) for i, fix in enumerate(fixes)]
 
 
-def fix_all_plan(text: str, chosen: list[tuple[Finding, Fix]]) -> Plan | None:
-    """One action applying the best fix of every finding (skipping fixes that overlap an earlier one)."""
+def fix_all_plan(text: str, chosen: list[tuple[Finding, Fix]], pending: int = 0) -> Plan | None:
+    """One action applying the best fix of every finding (skipping fixes that overlap an earlier one); its title
+    says how many searches are still running (those fixes are not in it: ask again to include them)."""
     picked: list[tuple[Finding, Fix]] = []
     for f, fix in sorted(chosen, key=lambda p: (p[1].span.line, p[1].span.col)):
         if picked and not (picked[-1][1].span.end_line, picked[-1][1].span.end_col) <= (fix.span.line, fix.span.col):
@@ -72,7 +73,8 @@ def fix_all_plan(text: str, chosen: list[tuple[Finding, Fix]]) -> Plan | None:
     if not picked:
         return None
     n = len(picked)
-    return Plan("fixall", f"Apply {n} verified condhint rewrite{'s' if n != 1 else ''}", FIX_ALL,
+    more = f" ({pending} still searching)" if pending else ""
+    return Plan("fixall", f"Apply {n} verified condhint rewrite{'s' if n != 1 else ''}{more}", FIX_ALL,
                 [f for f, _ in picked], _applied(text, [fix for _, fix in picked]))
 
 

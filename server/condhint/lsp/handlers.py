@@ -237,12 +237,17 @@ async def code_actions(ls: "CondhintServer", params: types.CodeActionParams) -> 
             else:
                 plans += actions.fix_plans(state.text, f, fixes)
     if fixing and actions.wanted(actions.FIX_ALL, only):
-        chosen = []
+        await _searches_done(ls, result, cfg)
+        chosen, pending = [], []
         for f in result.findings:
             ready, fixes = ls.background.fixes_of(f)
-            if ready and fixes:
+            if not ready:
+                pending.append(f)
+            elif fixes:
                 chosen.append((f, fixes[0]))
-        plan = actions.fix_all_plan(state.text, chosen)
+        plan = actions.fix_all_plan(state.text, chosen, len(pending))
+        if plan is None:
+            searching += [f for f in pending if f not in searching]
         if plan is not None:
             plans.append(plan)
     if actions.wanted(actions.QUICKFIX, only) or actions.wanted(actions.REFACTOR, only):
@@ -261,23 +266,31 @@ async def code_actions(ls: "CondhintServer", params: types.CodeActionParams) -> 
         else:
             action.edit = _edit(ls, state, p)
         out.append(action)
-    out += _still_searching(ls, searching, diagnostics)
+    kind = actions.QUICKFIX if actions.wanted(actions.QUICKFIX, only) else actions.FIX_ALL
+    out += _still_searching(ls, searching, diagnostics, kind)
     return out
 
 
-def _still_searching(ls: "CondhintServer", findings: list, diagnostics: dict) -> list[types.CodeAction]:
+def _still_searching(ls: "CondhintServer", findings: list, diagnostics: dict, kind: str) -> list[types.CodeAction]:
     """A fix whose search has not finished is never silently missing: clients that show disabled actions get
     one saying so; the others get a message. Asking again offers the fix once it is verified."""
     if not findings:
         return []
     title = "condhint: still searching for a verified fix (ask again in a moment)"
     if ls.client_has("text_document.code_action.disabled_support"):
-        return [types.CodeAction(title=title, kind=types.CodeActionKind.QuickFix,
+        return [types.CodeAction(title=title, kind=kind,
                                  diagnostics=[diagnostics[f.fingerprint()] for f in findings
                                               if f.fingerprint() in diagnostics] or None,
                                  disabled=types.CodeActionDisabled(reason="the search is still running"))]
     ls.window_show_message(types.ShowMessageParams(type=types.MessageType.Info, message=title))
     return []
+
+
+async def _searches_done(ls: "CondhintServer", result, cfg) -> None:  # noqa: ANN001
+    """Wait up to `fix_wait_ms`, in all, for the fix searches of the document's findings (for fix-all)."""
+    waiting = [ls.background.want_fixes(f, result, cfg) for f in result.findings if not ls.background.fixes_of(f)[0]]
+    if waiting:
+        await asyncio.wait([asyncio.shield(w) for w in waiting], timeout=cfg.fix_wait_ms / 1000.0)
 
 
 async def _fixes(ls: "CondhintServer", result, finding, cfg) -> list | None:  # noqa: ANN001
