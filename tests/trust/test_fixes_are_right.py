@@ -116,3 +116,33 @@ def test_a_fix_that_turns_a_finite_result_infinite_at_zero_is_not_offered(guard:
     attach_fixes(ma, Config())
     fixes = [x.replacement for f in ma.report.findings for x in f.fixes]
     assert any("math.sin(math.pi * rotation / 180)" in r for r in fixes) is offered, fixes
+
+
+def test_a_series_switches_where_its_truncation_is_checked_not_at_a_round_number_past_it() -> None:
+    # arctan(x) - x by its Taylor series to x**15 (terms (-1)^k x^(2k+1)/(2k+1), k ≥ 1; DLMF 4.24.3). The first
+    # omitted term, x**17/17, is 1e-18.2 relative at x = 0.1 — about 8 ulp, more than the quarter ulp a series fix
+    # may differ by (skyfield's test_positions.py:201 was offered the switch |x| < 0.1). The switch is checked at
+    # the round number itself, against mpmath, and moves down until it holds.
+    from fractions import Fraction
+
+    import mpmath
+
+    from condhint.expr import INPUT, Node
+    from condhint.numeric.evaluate import Deadline
+    from condhint.rewrites.search import SERIES_VAR, _checked_cut
+
+    x = Node(INPUT, name=SERIES_VAR, text=SERIES_VAR)
+    local = dag.sub(dag.call("atan", x), x)
+    terms = [(Fraction((-1) ** k, 2 * k + 1), 2 * k + 1) for k in range(1, 8)]
+    u = 2.0 ** -53
+
+    def within(cut: float) -> bool:
+        with mpmath.workdps(60):
+            c = mpmath.mpf(cut)
+            exact = mpmath.atan(c) - c
+            series = mpmath.fsum(mpmath.mpf(q.numerator) / q.denominator * c ** k for q, k in terms)
+            return abs((series - exact) / exact) <= u / 4
+
+    assert not within(0.1)  # what a round number below the coarse grid's first bad point gave
+    cut = _checked_cut(local, terms, 0.19457941426664335, [1.0, -1.0], u / 4, Deadline(10.0))
+    assert cut is not None and cut < 0.1 and within(cut)

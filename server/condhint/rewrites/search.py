@@ -193,7 +193,9 @@ def series(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Found]:
         yield Found("series", f"Use the Taylor series ({count} terms) on this small-argument range", poly, True,
                     f"Taylor series: accurate for |{name}| <= {num(hi, 2)} (checked); not beyond")
         return
-    cut = _nice_below(switch)
+    cut = _checked_cut(local, chosen, switch, signs, ctx.bench.u / 4, deadline)
+    if cut is None or cut <= lo:
+        return
     cond = dag.compare(dag.call("abs", u), "<", dag.const(cut))
     yield Found("series", f"Use the Taylor series ({count} terms) where |{_short(u)}| < {cut:g}",
                 dag.select(cond, poly, target), True)
@@ -208,6 +210,26 @@ def _exact(root: Node, grid: np.ndarray, deadline: Deadline) -> list[Any]:
     vals, dps = reference_values(topological(root), {SERIES_VAR: grid}, len(grid), deadline)
     with mpmath.workdps(dps):
         return [+v for v in vals[id(root)]]
+
+
+def _checked_cut(local: Node, terms: list[tuple[Fraction, int]], switch: float, signs: list[float], bound: float,
+                 deadline: Deadline) -> float | None:
+    """The round number below `switch` (the first sampled |u| past the truncation bound) at which the series is
+    checked to be within `bound` itself: the grid is coarse, and an argument between its last good point and
+    the round number must not go unchecked (the truncation error grows with |u|)."""
+    cut = _nice_below(switch)
+    for _ in range(6):
+        if cut <= 0:
+            return None
+        pts = np.array([s * cut for s in signs])
+        try:
+            exact = _exact(local, pts, deadline)
+        except BudgetExceeded:
+            return None
+        if np.all(_truncation(terms, pts, exact) <= bound):
+            return cut
+        cut = _nice_below(cut * 0.999)  # the next round number down: 0.1 → 0.09
+    return None
 
 
 def _truncation(terms: list[tuple[Fraction, int]], grid: np.ndarray, exact: list[Any]) -> np.ndarray:
