@@ -206,20 +206,24 @@ def test_fixes_no_longer_offered_are_not_in_the_current_set() -> None:
 
 @pytest.mark.slow
 def test_fixes_no_longer_offered_are_not_offered_on_their_files() -> None:
+    gone = [g for g in ls.load(ls.FIXES_CURRENT)["header"]["no_longer_offered"]
+            if (ls.site_packages() / g["path"]).exists()]  # packages scanned as downloaded sources are not here
+    if not gone:
+        pytest.skip("the scanned packages are not installed")
+    assert not _offered_again(gone)
+
+
+def _offered_again(fixes: list[dict]) -> list[str]:
+    """Which of these (path, replacement) fixes the current tool offers again on their installed files."""
     from condhint.config import Config
     from condhint.runner import check_paths
 
-    gone = [g for g in ls.load(ls.FIXES_CURRENT)["header"]["no_longer_offered"]
-            if (ls.site_packages() / g["path"]).exists()]  # packages scanned as downloaded sources are not here
-    files = sorted({g["path"] for g in gone})
-    if not files:
-        pytest.skip("the scanned packages are not installed")
+    files = sorted({g["path"] for g in fixes})
     found = check_paths([str(ls.site_packages() / f) for f in files], Config(), jobs=2, fixes=True,
                         show_progress=False).findings
     offered = {(str(Path(f.path).resolve().relative_to(ls.site_packages().resolve())), x.replacement)
                for f in found for x in f.fixes}
-    again = [f"{g['path']}:{g['line']} {g['replacement']}" for g in gone if (g["path"], g["replacement"]) in offered]
-    assert not again, again
+    return [f"{g['path']}:{g['line']} {g['replacement']}" for g in fixes if (g["path"], g["replacement"]) in offered]
 
 
 # A 12,000-line module whose check with fixes takes about 100 s; covered by the test above.
@@ -228,19 +232,10 @@ SLOW_FILES = {"scipy/stats/_continuous_distns.py"}
 
 @pytest.mark.slow
 def test_round_one_wrong_fixes_are_not_offered_on_their_files() -> None:
-    from condhint.config import Config
-    from condhint.runner import check_paths
-
     recs = [r for r in _records("round1") if r["verdict"] == "wrong" and r["path"] not in SLOW_FILES]
-    files = sorted({r["path"] for r in recs})
-    if not all((ls.site_packages() / f).exists() for f in files):
+    if not all((ls.site_packages() / r["path"]).exists() for r in recs):
         pytest.skip("the scanned packages are not installed")
-    found = check_paths([str(ls.site_packages() / f) for f in files], Config(), jobs=2, fixes=True,
-                        show_progress=False).findings
-    offered = {(str(Path(f.path).resolve().relative_to(ls.site_packages().resolve())), x.replacement)
-               for f in found for x in f.fixes}
-    again = [f"{r['path']}:{r['line']} {r['replacement']}" for r in recs if (r["path"], r["replacement"]) in offered]
-    assert not again, again
+    assert not _offered_again(recs)
 
 
 @pytest.mark.parametrize("rec", [r for r in _records() if r["verdict"] == "wrong" and r.get("repro")],
