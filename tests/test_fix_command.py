@@ -206,6 +206,9 @@ def test_the_fixed_demo_has_no_import_the_fix_left_unused(fixed_demo):
     ("import numpy as np  # arrays\nx = np.log(2)\n", "import numpy as np  # arrays\nx = 0.69\n", "x = 0.69\n"),
     # unused before the fix already: left alone (not ours to remove)
     ("from math import cos, tan\nx = cos(1)\n", "from math import cos, tan\nx = 1.0\n", "from math import tan\nx = 1.0\n"),
+    # a name re-exported by `__all__` stays imported
+    ("from math import cos\n__all__ = ['cos']\nx = cos(1)\n", "from math import cos\n__all__ = ['cos']\nx = 0.54\n",
+     "from math import cos\n__all__ = ['cos']\nx = 0.54\n"),
     # a line shared with another statement is not rewritten
     ("import math; y = 1\nx = math.log(2)\n", "import math; y = 1\nx = 0.69\n", "import math; y = 1\nx = 0.69\n"),
 ])

@@ -81,6 +81,11 @@ class Facts:
         return f"{pct(self.analysis.fraction or 0)} of the sampled range"
 
 
+def kappa_explains(a: Analysis) -> bool:
+    """Whether the problem's own κ accounts for the loss (within a digit): avoidable then only for exact inputs."""
+    return (a.worst_kappa or 0) >= 10 ** ((a.digits or 0) - 1)
+
+
 def formula_message(m: Facts) -> str:
     a, flagged, srcs = m.analysis, m.flagged, m.sources_of_error
     if flagged.kind in ("sub", "add") and len(flagged.args) == 2:
@@ -93,7 +98,7 @@ def formula_message(m: Facts) -> str:
         what = f"{label(flagged)} magnifies the rounding error of {', '.join(code(s.text) for s in srcs)}"
     else:
         what = f"the rounding in {label(flagged)} is magnified downstream"
-    avoidable = (a.worst_kappa or 0) < 10 ** ((a.digits or 0) - 1)
+    avoidable = not kappa_explains(a)
     head = (f"Loses {digits(a.digits)} of {counted_in(m.site.float_format)}, "
             + (f"avoidable (κ ≈ {num(a.worst_kappa)})." if avoidable else
                f"avoidable only for exact inputs (κ ≈ {num(a.worst_kappa)})."))

@@ -8,7 +8,7 @@ from condhint.config import Config
 from condhint.expr import CONST, INPUT, Span, topological
 from condhint.findings import Finding, InputInfo
 from condhint.kinds import BY_CATEGORY, NOT_ANALYSED, only_at_assumed_extremes
-from condhint.messages import Facts, declare_note
+from condhint.messages import Facts, declare_note, kappa_explains
 from condhint.numeric.analysis import Analysis
 from condhint.site import Site
 
@@ -65,9 +65,9 @@ def findings_for(site: Site, a: Analysis, cfg: Config, path: str, origin: str = 
     main = finding_for(site, a, cfg, path, origin, symbolic)
     if main is None or a.category != "formula" or not a.worst_kappa or not math.isfinite(a.worst_kappa):
         return [main] if main is not None else []
-    at_risk = min(math.log10(a.worst_kappa), site.float_format.digits) if a.worst_kappa > 1 else 0.0
-    if at_risk < (a.digits or 0) - 1:  # κ explains less than the loss: the loss is avoidable
+    if not kappa_explains(a):
         return [main]
+    at_risk = min(math.log10(a.worst_kappa), site.float_format.digits) if a.worst_kappa > 1 else 0.0
     inherent = finding_for(site, replace(a, category="inherent", digits=at_risk, culprit=None), cfg, path, origin,
                            symbolic)
     if inherent is None:

@@ -7,9 +7,9 @@ from typing import TYPE_CHECKING
 
 from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node
 from condhint.numeric.evaluate import evaluate_constant
-from condhint.numeric.sampling import LITERAL
-from condhint.numeric.operations import OPERATIONS
 from condhint.numeric.formats import BINARY64, Format
+from condhint.numeric.operations import OPERATIONS
+from condhint.numeric.sampling import LITERAL
 from condhint.reading.arrays import NOT_A_REDUCTION, reduction_call
 from condhint.reading.dtypes import cast_target, dtype_keyword
 from condhint.reading.inline import inline_call

@@ -124,7 +124,7 @@ def range_call(e: ast.expr, env: dict[str, Node | None]) -> ast.Call | None:
 def assume_range(conv: "Converter", target: ast.expr, call: ast.Call, ctx: Context) -> None:
     """`for k in range(a, b)` (or a comprehension over it): what holds inside is `a <= k < b` — an interval
     when the bounds are constants (`n = 100` before counts), a filter when they are other values
-    (`range(0, i + 1)`: k <= i). A negative step gives `a >= k > b`; an unknown step, nothing."""
+    (`range(0, i + 1)`: k < i + 1). A negative step gives `a >= k > b`; an unknown step, nothing."""
     if not isinstance(target, ast.Name) or call.keywords or not 1 <= len(call.args) <= 3:
         return
     args = list(call.args)

@@ -104,15 +104,26 @@ def _loads(tree: ast.AST) -> set[str]:
     return {n.id for n in ast.walk(tree) if isinstance(n, ast.Name) and isinstance(n.ctx, ast.Load)}
 
 
+def _exported(tree: ast.Module) -> set[str]:
+    """The names a module lists in `__all__` (re-exports stay imported)."""
+    out: set[str] = set()
+    for stmt in tree.body:
+        if isinstance(stmt, (ast.Assign, ast.AugAssign, ast.AnnAssign)) and "__all__" in {
+                t.id for t in (stmt.targets if isinstance(stmt, ast.Assign) else [stmt.target])
+                if isinstance(t, ast.Name)} and stmt.value is not None:
+            out |= {c.value for c in ast.walk(stmt.value) if isinstance(c, ast.Constant) and isinstance(c.value, str)}
+    return out
+
+
 def drop_unused_imports(before: str, after: str) -> str:
     """`after` without the module-level imported names that `before` used and `after` no longer does (the ones
     a fix made unused); imports that were unused already, and names re-exported by `__all__`, stay. Only
     one-line import statements are rewritten; an emptied one is removed with its line."""
     old, new = ast.parse(before), ast.parse(after)
-    gone = _loads(old) - _loads(new)
+    gone = _loads(old) - _loads(new) - _exported(new)
     if not gone:
         return after
-    starts, lines = line_starts(after), after.splitlines(keepends=True)
+    starts, lines, source = line_starts(after), after.splitlines(keepends=True), Source(after)
     out = after
     for stmt in reversed(new.body):
         if not isinstance(stmt, (ast.Import, ast.ImportFrom)) or stmt.lineno != stmt.end_lineno or any(
@@ -121,7 +132,6 @@ def drop_unused_imports(before: str, after: str) -> str:
         keep = [a for a in stmt.names if (a.asname or a.name).split(".")[0] not in gone]
         if len(keep) == len(stmt.names):
             continue
-        source = Source(after)
         a = offset(after, starts, stmt.lineno, source.char_col(stmt.lineno, stmt.col_offset))
         b = offset(after, starts, stmt.lineno, source.char_col(stmt.lineno, stmt.end_col_offset or 0))
         line = lines[stmt.lineno - 1]
