@@ -48,6 +48,7 @@ class Unit:
     name: str  # MODULE, or the definition's name
     start: int  # first and last line (1-based, inclusive); the module-level code spans the whole text
     end: int
+    decorated: bool = False
 
     @property
     def is_module(self) -> bool:
@@ -195,6 +196,8 @@ class ModuleIndex:
         for u in self.units[1:]:
             if u != keep:
                 lines[u.start - 1:u.end] = [""] * (u.end - u.start + 1)
+                if u.decorated:  # its decorators (module-level code) still need something to decorate
+                    lines[u.start - 1] = f"def {u.name}(): pass"
         return "\n".join(lines)
 
     @cached_property
@@ -249,7 +252,8 @@ def read_module(text: str, tolerant: bool = False) -> tuple[ModuleIndex | None, 
 
 def _units(tree: ast.Module, n_lines: int) -> list[Unit]:
     units = [Unit(MODULE, 1, max(n_lines, 1))]
-    units += [Unit(s.name, s.lineno, s.end_lineno or s.lineno) for s in tree.body if isinstance(s, DEFS)]
+    units += [Unit(s.name, s.lineno, s.end_lineno or s.lineno, bool(s.decorator_list))
+              for s in tree.body if isinstance(s, DEFS)]
     return units
 
 

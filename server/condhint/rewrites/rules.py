@@ -14,7 +14,7 @@ from typing import Any, Callable
 from sympy.codegen import rewriting as sr
 
 from condhint.expr import CONST, Node
-from condhint.rewrites import dag, sym
+from condhint.rewrites import dag, primitives, sym
 from condhint.rewrites.context import Context
 
 Match = dict[str, Any]
@@ -182,7 +182,7 @@ def _squares_match(node: Node) -> Match | None:
     d = dag.difference(node)
     if d is None:
         return None
-    x, y = dag.square_of(d[0]), dag.square_of(d[1])
+    x, y = (part if dag.is_const(part, 1) else dag.square_of(part) for part in d)  # 1 is 1²
     return {"x": x, "y": y} if x is not None and y is not None else None
 
 
@@ -193,7 +193,7 @@ def _squares_build(m: Match, ctx: Context) -> list[Node]:
 
 
 DIFFERENCE_OF_SQUARES = Rule(
-    "difference-of-squares", "Factor a² − b² as (a − b)(a + b)", "any a, b", "Goldberg 1991",
+    "difference-of-squares", "Factor a² − b² as (a − b)(a + b)", "any a, b (1 counts as 1²)", "Goldberg 1991",
     _squares_match, _squares_build)
 
 
@@ -311,6 +311,17 @@ ASINH = Rule(
     "asinh", "Use asinh for log(x + sqrt(x² + 1))", "any x (acosh: x ≥ 1)", "NIST DLMF ch. 4",
     _asinh_match, _asinh_build,
     requires=lambda m, ctx: m["kind"] == "asinh" or ctx.nonneg(dag.sub(m["x"], dag.const(1))))
+
+
+# ---- values near one: cancellation-free primitives from normalised operands (`primitives.py`) ---------------------------
+NEAR_ONE_DIFFERENCE = Rule(
+    "near-one-difference", "Write the difference of close powers or exponentials with expm1", "P/Q > 0",
+    "NIST DLMF ch. 4; Goldberg 1991; Higham 2002", lambda n: {"t": n} if dag.difference(n) else None,
+    lambda m, ctx: primitives.candidates(m["t"], ctx, "differences"))
+LOG_NEAR_ONE = Rule(
+    "log-near-one", "Write the logarithm of a value near one with log1p", "argument > 0",
+    "Goldberg 1991; ISO C99 log1p", lambda n: {"t": n} if n.kind in ("log", "log10", "log2") else None,
+    lambda m, ctx: primitives.candidates(m["t"], ctx, "logs"))
 
 
 # ---- trigonometry (NIST DLMF ch. 4: half-angle and sum-to-product) -------------------------------------------------------
@@ -431,7 +442,7 @@ QUADRATIC_ROOT = Rule(
 
 RULES: tuple[Rule, ...] = (  # specific identities first, general algebra last
     QUADRATIC_ROOT, ASINH, LOGADDEXP, HYPOT, COMPOUND_POWER, LOG_DIFFERENCE, EXP_DIFFERENCE, ONE_MINUS_COS,
-    COS_MINUS_ONE, TAN_MINUS_SIN, COS_DIFFERENCE, SIN_DIFFERENCE, EXPM1, LOG1P, SQRT_DIFFERENCE, SQRT_AND_TERM,
+    COS_MINUS_ONE, TAN_MINUS_SIN, COS_DIFFERENCE, SIN_DIFFERENCE, EXPM1, LOG1P, NEAR_ONE_DIFFERENCE, LOG_NEAR_ONE, SQRT_DIFFERENCE, SQRT_AND_TERM,
     COMBINE_FRACTIONS, QUOTIENT_MINUS_ONE, DIFFERENCE_OF_SQUARES, LOG_SUM_EXP, LOG2, EXP2,
 )
 BY_ID = {r.id: r for r in RULES}

@@ -1,0 +1,214 @@
+"""Cancellation-free primitives found by normalising the cancelling operands, instead of one rule per pattern.
+
+A difference `P − Q` whose operands are close is `Q·(P/Q − 1)`; when the ratio `P/Q` normalises to a power
+or exponential `exp(L)` (sympy's `powsimp`/`together` on the two operands, named values opened one level) the
+difference is `Q·expm1(L)` with `L` spelled through `log1p` where a base is near one. `log(A)` with `A` near
+one is `log1p(A − 1)` with `A − 1` normalised the same way; `cos(u) − 1` is `−2·sin²(u/2)`. So
+`x**p − 1`, `(1 + x)**p − 1`, `1 − (1 + x)**(−c)`, `1 − 1/sqrt(1 + z)`, `1/sqrt(1 − b*b) − 1`,
+`log(cos t)` and `log(x + (1 − x)·exp(−k))` all come from the same three primitives (expm1, log1p and the
+half-angle form of cos − 1; NIST DLMF ch. 4, Goldberg 1991). Everything proposed here is only a candidate:
+`verify` measures it like any other rewrite.
+"""
+from __future__ import annotations
+
+from typing import Any, Callable, Iterator
+
+import sympy as sp
+
+from condhint.budget import OverBudget, run_with_budget
+from condhint.expr import CONST, Node, topological
+from condhint.rewrites import dag, sym
+from condhint.rewrites.context import Context
+
+Expr = Any  # a sympy expression
+MAX_CANDIDATES = 6
+MAX_OPS = 40  # longer normal forms are not what a person would write
+
+
+# ---- the primitives on sympy expressions -------------------------------------------------------------------------
+def _expm1() -> Any:
+    return sym.named("expm1")
+
+
+def _log1p() -> Any:
+    return sym.named("log1p")
+
+
+def log_of(base: Expr) -> Expr:
+    """log(base) without cancellation: `log1p(base − 1)` when `base − 1` normalises to something other than
+    itself (`1 + x` gives `log1p(x)`, `(1 − q)/(1 + q)` gives `log1p(−2q/(1 + q))`, `x` stays `log(x)`)."""
+    near = [f for f in _normal_forms(base - 1) if f.as_coeff_Add()[0] == 0]
+    return _log1p()(near[0]) if near else sp.log(base)
+
+
+def _log1p_direct(e: Expr) -> Expr:
+    """Every log(1 + t) in `e` as log1p(t), and log1p(expm1(u)) as u; nothing else changed."""
+    e = e.replace(lambda x: isinstance(x, sp.log) and len(x.args) == 1 and x.args[0].as_coeff_Add()[0] == 1,
+                  lambda x: _log1p()(x.args[0] - 1))
+    return e.replace(lambda x: isinstance(x, _log1p()) and isinstance(x.args[0], _expm1()),
+                     lambda x: x.args[0].args[0])
+
+
+def _tidy_sign(e: Expr) -> Expr:
+    """−(x − 1)·y as (1 − x)·y: a minus sign is taken into a difference it multiplies."""
+    if not e.is_Mul or not e.could_extract_minus_sign():
+        return e
+    factors = list(sp.Mul.make_args(-e))
+    for i, f in enumerate(factors):
+        if f.is_Add and len(f.args) == 2:
+            factors[i] = sp.Add(*(-a for a in f.args), evaluate=False)
+            return sp.Mul(*factors, evaluate=False)
+    return e
+
+
+def _factor_over_atoms(e: Expr) -> Expr:
+    """`e` factored with every function value and symbolic power taken as one variable, so that
+    `x + (1 − x)·exp(−k) − 1` becomes `(1 − x)·(exp(−k) − 1)` rather than a polynomial in exp(k)."""
+    atoms = {a for a in sp.preorder_traversal(e)
+             if isinstance(a, sp.Function) or (a.is_Pow and not a.exp.is_Integer)}
+    there = {a: sp.Dummy() for a in atoms}
+    back = {d: a for a, d in there.items()}
+    return sp.factor(e.xreplace(there)).xreplace(back)
+
+
+def _exponent(t: Expr) -> Expr | None:
+    """L with t = exp(L) for a power, an exponential or a product of them; None otherwise."""
+    if isinstance(t, sp.exp):
+        return t.args[0]
+    if t.is_Pow:
+        base, e = t.args
+        if base is sp.E:
+            return e
+        if base.is_number:
+            return e * sp.log(base) if base.is_positive else None
+        return e * log_of(base)
+    if t.is_Mul:
+        parts = [_exponent(f) for f in sp.Mul.make_args(t)]
+        return sp.Add(*parts) if all(p is not None for p in parts) and len(parts) > 1 else None
+    return None
+
+
+def minus_one(t: Expr) -> Expr | None:
+    """t − 1 without cancellation for t = exp(L), a power or cos(u); None when t is none of these."""
+    if isinstance(t, sp.cos):
+        return -2 * sp.sin(t.args[0] / 2) ** 2
+    L = _exponent(t)
+    return None if L is None else _expm1()(L)
+
+
+def _with_primitives(e: Expr) -> Expr:
+    """`e` with every `±t ∓ 1` inside it spelled through `minus_one` (innermost first)."""
+    if e.is_Atom:
+        return e
+    e = e.func(*(_with_primitives(a) for a in e.args))
+    if e.is_Add:
+        const, rest = e.as_coeff_Add()
+        if const in (1, -1) and not rest.is_Add:
+            coeff, t = rest.as_coeff_Mul()
+            if coeff == -const:  # ±(t − 1)
+                m = minus_one(t)
+                if m is not None:
+                    return -const * m
+    return e
+
+
+def _normal_forms(e: Expr) -> list[Expr]:
+    """Normal forms of `e` in which cancelling operands have been combined, shortest first."""
+    forms: list[Expr] = []
+    for f in (sp.together, _factor_over_atoms, sp.factor, sp.cancel, lambda x: sp.together(x.rewrite(sp.exp))):
+        try:
+            g = _tidy_sign(_log1p_direct(_with_primitives(f(e))))
+        except (TypeError, ValueError, AttributeError, RecursionError, NotImplementedError, sp.PolynomialError):
+            continue
+        if g not in forms and sym.count_ops(g) <= MAX_OPS:
+            forms.append(g)
+    return sorted(forms, key=sym.count_ops)
+
+
+# ---- candidates for a target -------------------------------------------------------------------------------------
+def _difference(e: Expr) -> tuple[Expr, Expr] | None:
+    """(P, Q) for e = P − Q with two terms."""
+    if not e.is_Add or len(e.args) != 2:
+        return None
+    a, b = e.args
+    if b.could_extract_minus_sign():
+        return a, -b
+    if a.could_extract_minus_sign():
+        return b, -a
+    return None
+
+
+def near_one_differences(e: Expr) -> Iterator[Expr]:
+    """P − Q as Q·expm1(log(P/Q)) or −P·expm1(log(Q/P)) where the ratio is a power or exponential."""
+    pq = _difference(e)
+    if pq is None:
+        return
+    p, q = pq
+    for num, den, sign in ((p, q, 1), (q, p, -1)):
+        ratio = sp.powsimp(sp.together(num / den), force=False)
+        m = minus_one(ratio)
+        if m is not None:
+            yield sign * den * m if den != 1 else sign * m
+
+
+def near_one_logs(e: Expr) -> Iterator[Expr]:
+    """log(A) as log1p(A − 1) with A − 1 normalised; log10 and log2 through log."""
+    scale: Expr = 1
+    if isinstance(e, sp.log) and len(e.args) == 1:
+        arg = e.args[0]
+    elif isinstance(e, (sym.named("log10"), sym.named("log2"))):
+        arg, scale = e.args[0], sp.log(10 if isinstance(e, sym.named("log10")) else 2)
+    else:
+        return
+    for form in _normal_forms(arg - 1):
+        yield _log1p_direct(_log1p()(form)) / scale
+    expanded = sp.expand_log(sp.log(arg), force=True)
+    if expanded != sp.log(arg):
+        yield _log1p_direct(expanded) / scale
+
+
+GENERATORS: dict[str, Callable[[Expr], Iterator[Expr]]] = {
+    "differences": near_one_differences, "logs": near_one_logs}
+
+
+def _generated(kind: str, e: Expr) -> list[Expr]:
+    return list(GENERATORS[kind](e))
+
+
+def _first_names(node: Node, ctx: Context) -> tuple[Node, ...]:
+    """Named values the target uses directly (not through another name): these are opened one level."""
+    out, stack, seen = [], list(node.args), set()
+    while stack:
+        n = stack.pop()
+        if id(n) in seen or n.kind == CONST:
+            continue
+        seen.add(id(n))
+        if id(n) in ctx.atoms:
+            out.append(n)
+        else:
+            stack.extend(n.args)
+    return tuple(out)
+
+
+def candidates(node: Node, ctx: Context, kind: str) -> list[Node]:
+    """Candidate DAGs for `node` from one generator: as written, and with its named operands opened."""
+    out: list[Node] = []
+    seen: set[Expr] = set()
+    opened = _first_names(node, ctx)
+    for op in ((), opened) if opened else ((),):
+        try:
+            tr = ctx.translate(node, op)
+            forms = run_with_budget(_generated, (kind, tr.expr), ctx.sympy_seconds)
+        except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, AttributeError):
+            continue
+        for form in forms:
+            if form in seen or form == tr.expr:
+                continue
+            seen.add(form)
+            try:
+                out.append(sym.from_sympy(form, tr))
+            except (sym.Untranslatable, ValueError, TypeError):
+                continue
+            if len(out) >= MAX_CANDIDATES:
+                return out
+    return [c for c in out if any(n.kind in ("expm1", "log1p", "sin") for n in topological(c))]
