@@ -164,6 +164,60 @@ CASES = [
          else -0.5 * (b + math.copysign(math.sqrt(b * b + 4), b)),
          lambda b: (-b + mpmath.sqrt(b * b + 4)) / 2, [(-v,) for (v,) in geo(1e-3, 1e8)] + geo(1e-3, 1e8),
          "Forsythe 1966; Goldberg 1991 (sign-aware root selection)"),
+    # Values near one through the expm1/log1p primitives (primitives.py): one rule for every power or
+    # exponential whose ratio to the other operand is near one.
+    Case("near-one-difference", "import math\n"
+         "def f(x, p):  # condhint: 0.5 <= x <= 2, 1e-9 <= p <= 1e-3\n    return x**p - 1\n",
+         "math.expm1(p * math.log(x))", [], lambda x, p: x**p - 1, lambda x, p: math.expm1(p * math.log(x)),
+         lambda x, p: mpmath.power(x, p) - 1, grid(np.array([0.5, 0.7, 0.9, 1.1, 1.5, 2.0]), np.geomspace(1e-9, 1e-3, 7)),
+         "NIST DLMF ch. 4 (4.2.21, powers through exp and log); Goldberg 1991 (expm1)"),
+    Case("near-one-difference", "import math\n"
+         "def f(x, p):  # condhint: 1e-12 <= x <= 1e-4, 1 <= p <= 50\n    return (1 + x)**p - 1\n",
+         "math.expm1(p * math.log1p(x))", [], lambda x, p: (1 + x)**p - 1,
+         lambda x, p: math.expm1(p * math.log1p(x)), lambda x, p: mpmath.power(1 + x, p) - 1,
+         grid(np.geomspace(1e-12, 1e-4, 9), np.linspace(1, 50, 5)), "Higham 2002 (compound interest); Goldberg 1991"),
+    Case("near-one-difference", "import math\n"
+         "def annuity_factor(x, c):  # condhint: 1e-12 <= x <= 1e-4, 1 <= c <= 30\n    return 1 - (1 + x)**(-c)\n",
+         "-math.expm1(-(c * math.log1p(x)))", [], lambda x, c: 1 - (1 + x)**(-c),
+         lambda x, c: -math.expm1(-(c * math.log1p(x))), lambda x, c: 1 - mpmath.power(1 + x, -c),
+         grid(np.geomspace(1e-12, 1e-4, 9), np.linspace(1, 30, 5)), "Higham 2002 (compound interest); Goldberg 1991"),
+    Case("near-one-difference", "import math\n"
+         "def f(z):  # condhint: 1e-12 <= z <= 1e-3\n    return 1 - 1 / math.sqrt(1 + z)\n",
+         "-math.expm1(-(math.log1p(z) / 2))", [], lambda z: 1 - 1 / math.sqrt(1 + z),
+         lambda z: -math.expm1(-(math.log1p(z) / 2)), lambda z: 1 - 1 / mpmath.sqrt(1 + z), geo(1e-12, 1e-3),
+         "Goldberg 1991 (expm1, log1p); NIST DLMF ch. 4"),
+    Case("near-one-difference", "import math\n"
+         "def kinetic(m, b):  # condhint: 1 <= m <= 2, 1e-9 <= b <= 1e-2\n    return m * (1 / math.sqrt(1 - b * b) - 1)\n",
+         "math.expm1(-(math.log1p(-(b * b)) / 2))", [], lambda m, b: m * (1 / math.sqrt(1 - b * b) - 1),
+         lambda m, b: m * math.expm1(-(math.log1p(-(b * b)) / 2)), lambda m, b: m * (1 / mpmath.sqrt(1 - b * b) - 1),
+         grid(np.array([1.0, 1.5, 2.0]), np.geomspace(1e-9, 1e-2, 9)), "Goldberg 1991 (expm1, log1p); NIST DLMF ch. 4"),
+    Case("near-one-difference", "import numpy as np\n"
+         "def growth(B, x):  # condhint: 1e-6 <= B <= 1e-3, 1e-6 <= x <= 1\n"
+         "    eBx = np.exp(B * x)\n    return (eBx - 1.0) * eBx\n",
+         "np.expm1(B * x)", [], lambda B, x: (math.exp(B * x) - 1.0) * math.exp(B * x),
+         lambda B, x: math.expm1(B * x) * math.exp(B * x), lambda B, x: mpmath.expm1(B * x) * mpmath.exp(B * x),
+         grid(np.geomspace(1e-6, 1e-3, 5), np.geomspace(1e-6, 1, 5)), "Goldberg 1991; ISO C99 expm1 (named value opened)"),
+    Case("log-near-one", "import math\n"
+         "def f(t):  # condhint: 1e-8 <= t <= 1e-2\n    return math.log(math.cos(t))\n",
+         "math.log1p(-(2 * math.sin(t / 2) ** 2))", [], lambda t: math.log(math.cos(t)),
+         lambda t: math.log1p(-(2 * math.sin(t / 2) ** 2)), lambda t: mpmath.log(mpmath.cos(t)), geo(1e-8, 1e-2),
+         "NIST DLMF ch. 4 (half-angle formula); Goldberg 1991 (log1p)"),
+    Case("log-near-one", "import numpy as np\n"
+         "def envelope(x, k):  # condhint: 0 <= x <= 0.9, 1e-9 <= k <= 1e-3\n"
+         "    return np.log(x + (1. - x) * np.exp(-2 * k))\n",
+         "np.log1p((1. - x) * np.expm1(-2 * k))", [], lambda x, k: math.log(x + (1. - x) * math.exp(-2 * k)),
+         lambda x, k: math.log1p((1. - x) * math.expm1(-2 * k)),
+         lambda x, k: mpmath.log(x + (1 - x) * mpmath.exp(-2 * k)),
+         grid(np.linspace(0, 0.9, 4), np.geomspace(1e-9, 1e-3, 7)), "Goldberg 1991 (log1p, expm1)"),
+    Case("log-near-one", "import numpy as np\n"
+         "def gain_db(w):  # condhint: 1e-5 <= w <= 1e-2\n    return np.log10(np.sqrt(1.0 / (1.0 + w**6)))\n",
+         "-(np.log1p(w**6) / (2 * np.log(10)))", [], lambda w: math.log10(math.sqrt(1.0 / (1.0 + w**6))),
+         lambda w: -(math.log1p(w**6) / (2 * math.log(10))), lambda w: mpmath.log10(mpmath.sqrt(1 / (1 + w**6))),
+         geo(1e-5, 1e-2), "NIST DLMF ch. 4 (4.2.8 log of a power); Goldberg 1991 (log1p)"),
+    Case("difference-of-squares", "import numpy as np\n"
+         "def f(x):  # condhint: 0.999 <= x <= 0.999999\n    return 1. - np.square(x)\n",
+         "(1. - x) * (1. + x)", [], lambda x: 1. - x * x, lambda x: (1. - x) * (1. + x), lambda x: 1 - x * x,
+         [(float(v),) for v in 1 - np.geomspace(1e-6, 1e-3, 9)], "Goldberg 1991 (1 = 1², Sterbenz 1974)"),
 ]
 
 
@@ -242,6 +296,14 @@ MUST_NOT_FIRE = [
     ("log2", "import math\ndef f(x):  # condhint: 1e-3 <= x <= 1e3\n    return math.log(x) / math.log(2)\n",
      "math.log(x) / math.log(2)", "measured"),
     ("exp2", "import math\ndef f(x):  # condhint: -10 <= x <= 10\n    return 2 ** x\n", "2 ** x", "measured"),
+    ("near-one-difference", "import math\ndef f(x, p):  # condhint: 2 <= x <= 10, 1 <= p <= 3\n    return x**p - 1\n",
+     "x**p - 1", "measured"),
+    ("near-one-difference", "def f(a, b):  # condhint: 1 <= a <= 2, 1 <= b <= 2\n    return a - b\n", "a - b",
+     "precondition"),
+    ("log-near-one", "import math\ndef f(x):  # condhint: 10 <= x <= 1e6\n    return math.log(x)\n", "math.log(x)",
+     "measured"),
+    ("log-near-one", "import math\ndef f(x, y):  # condhint: 10 <= x <= 1e6, 10 <= y <= 1e6\n"
+     "    return math.log(x + y)\n", "math.log(x + y)", "measured"),
 ]
 
 
