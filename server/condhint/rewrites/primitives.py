@@ -23,6 +23,7 @@ from condhint.rewrites.context import Context
 Expr = Any  # a sympy expression
 MAX_CANDIDATES = 6
 MAX_OPS = 40  # longer normal forms are not what a person would write
+SYMPY_SECONDS = 1.0  # for all the normal forms of one target (a few sympy calls of ~0.05 s each when warm)
 
 
 # ---- the primitives on sympy expressions -------------------------------------------------------------------------
@@ -160,11 +161,11 @@ def near_one_logs(e: Expr) -> Iterator[Expr]:
         arg, scale = e.args[0], sp.log(10 if isinstance(e, sym.named("log10")) else 2)
     else:
         return
-    for form in _normal_forms(arg - 1):
-        yield _log1p_direct(_log1p()(form)) / scale
     expanded = sp.expand_log(sp.log(arg), force=True)
     if expanded != sp.log(arg):
         yield _log1p_direct(expanded) / scale
+    for form in _normal_forms(arg - 1):
+        yield _log1p_direct(_log1p()(form)) / scale
 
 
 GENERATORS: dict[str, Callable[[Expr], Iterator[Expr]]] = {
@@ -198,7 +199,7 @@ def candidates(node: Node, ctx: Context, kind: str) -> list[Node]:
     for op in ((), opened) if opened else ((),):
         try:
             tr = ctx.translate(node, op)
-            forms = run_with_budget(_generated, (kind, tr.expr), ctx.sympy_seconds)
+            forms = run_with_budget(_generated, (kind, tr.expr), SYMPY_SECONDS)
         except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, AttributeError):
             continue
         for form in forms:
