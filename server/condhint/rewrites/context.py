@@ -28,10 +28,13 @@ class Context:
     def is_positive_atom(self, node: Node) -> bool:
         return (node.kind == INPUT or id(node) in self.atoms) and self.positive(node)
 
+    def closed(self, opened: tuple[Node, ...] = ()) -> set[int]:
+        """The nodes written as names, but those in `opened`."""
+        return {a for a in self.atoms if all(a != id(o) for o in opened)}
+
     def translate(self, node: Node, opened: tuple[Node, ...] = ()) -> sym.Translation:
         """`node` in sympy with named sub-expressions as symbols, except those in `opened` (one level)."""
-        atoms = {a for a in self.atoms if all(a != id(o) for o in opened)}
-        return sym.to_sympy(node, atoms, self.is_positive_atom)
+        return sym.to_sympy(node, self.closed(opened), self.is_positive_atom)
 
     def simplest(self, node: Node, opened: tuple[Node, ...] = ()) -> Node:
         """The simplest equivalent of a rule-built `node` that sympy finds quickly (the node itself if none).
@@ -40,11 +43,13 @@ class Context:
         while `c` keeps its name."""
         best, best_ops = node, _operations(node, self.atoms)
         for op in (opened, ()) if opened else ((),):
+            # shorter than the node itself, counted as this translation sees it (opened names written out)
+            written = _operations(node, self.closed(op))
             try:
                 tr = self.translate(node, op)
                 simple = run_with_budget(_simplify, (tr.expr,), self.sympy_seconds)
                 ops = sym.count_ops(simple)
-                if ops < best_ops:
+                if ops < written and (best is node or ops < best_ops):
                     best, best_ops = sym.from_sympy(simple, tr), ops
             except (OverBudget, RuntimeError, ValueError, TypeError, sym.Untranslatable, RecursionError,
                     ZeroDivisionError):

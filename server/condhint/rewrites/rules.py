@@ -141,12 +141,12 @@ def _sqrt_and_term(node: Node) -> Match | None:
 
 
 def _rationalised(m: Match, ctx: Context) -> Node:
-    """sqrt(p) + w·t = (p − t²)/(sqrt(p) − w·t), times s; w = s·r."""
+    """s·(sqrt(p) + w·t) = s·(p − t²)/(sqrt(p) − w·t); w = s·r (s = −1 turns the numerator round)."""
     w = m["s"] * m["r"]
-    num = ctx.simplest(dag.sub(m["p"], dag.mul(m["t"], m["t"])), (m["p"], m["t"]))
+    p, t2 = m["p"], dag.mul(m["t"], m["t"])
+    num = ctx.simplest(dag.sub(p, t2) if m["s"] == 1 else dag.sub(t2, p), (m["p"], m["t"]))
     den = dag.sub(m["root"], m["t"]) if w == 1 else dag.add(m["root"], m["t"])
-    out = dag.div(num, den)
-    return out if m["s"] == 1 else dag.neg(out)
+    return dag.div(num, den)
 
 
 def _sqrt_and_term_build(m: Match, ctx: Context) -> list[Node]:

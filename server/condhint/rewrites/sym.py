@@ -42,7 +42,8 @@ class Translation:
             else:
                 vals[id(node)] = operation(node, [vals[id(x)] for x in node.args],
                                            None if exact_forms else _NAMED)
-            self.nodes.setdefault(vals[id(node)], node)
+            if node.text or node.kind in (INPUT, CONST):  # the user's nodes; a rule-built one is no text to keep
+                self.nodes.setdefault(vals[id(node)], node)
         self.expr = vals[id(root)]
 
 
