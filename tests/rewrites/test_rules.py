@@ -218,6 +218,35 @@ CASES = [
          "def f(x):  # condhint: 0.999 <= x <= 0.999999\n    return 1. - np.square(x)\n",
          "(1. - x) * (1. + x)", [], lambda x: 1. - x * x, lambda x: (1. - x) * (1. + x), lambda x: 1 - x * x,
          [(float(v),) for v in 1 - np.geomspace(1e-6, 1e-3, 9)], "Goldberg 1991 (1 = 1², Sterbenz 1974)"),
+    # Operands that differ by a quantity the code has under a name: the rule looks through the names.
+    Case("combine-fractions", "def potential(r1, h):  # condhint: 1 <= r1 <= 10, 1e-9 <= h <= 1e-4\n"
+         "    r2 = r1 + h\n    return 1 / r1 - 1 / r2\n",
+         "h / (r1 * r2)", [], lambda r1, h: 1 / r1 - 1 / (r1 + h), lambda r1, h: h / (r1 * (r1 + h)),
+         lambda r1, h: 1 / r1 - 1 / (r1 + h), grid(np.linspace(1, 10, 4), np.geomspace(1e-9, 1e-4, 6)),
+         "common practice (difference of fractions over a common denominator)"),
+    Case("log-difference", "import math\n"
+         "def log_ratio(r1, h):  # condhint: 1 <= r1 <= 10, 1e-9 <= h <= 1e-4\n"
+         "    r2 = r1 + h\n    return math.log(r2) - math.log(r1)\n",
+         "math.log1p(h / r1)", [], lambda r1, h: math.log(r1 + h) - math.log(r1), lambda r1, h: math.log1p(h / r1),
+         lambda r1, h: mpmath.log(r1 + h) - mpmath.log(r1), grid(np.linspace(1, 10, 4), np.geomspace(1e-9, 1e-4, 6)),
+         "Goldberg 1991"),
+    Case("sqrt-minus-term", "import math\n"
+         "def smaller_root(p, q, s):  # condhint: 1e3 <= p <= 1e4, 1e-3 <= q <= 1, 1e-3 <= s <= 1\n"
+         "    b = p + q\n    disc = b * b - s\n    return b - math.sqrt(disc)\n",
+         "s / (math.sqrt(disc) + b)", [], lambda p, q, s: (p + q) - math.sqrt((p + q) * (p + q) - s),
+         lambda p, q, s: s / (math.sqrt((p + q) * (p + q) - s) + (p + q)),
+         lambda p, q, s: (p + q) - mpmath.sqrt((p + q) ** 2 - s),
+         grid(np.geomspace(1e3, 1e4, 3), np.geomspace(1e-3, 1, 3), np.geomspace(1e-3, 1, 3)),
+         "common practice (multiply by the conjugate); Forsythe 1966"),
+    Case("sqrt-minus-term", "import math\n"
+         "def cubic_step(a, B, C):  # condhint: 1e-3 <= a <= 1, 1e2 <= B <= 1e4, 1e-3 <= C <= 1\n"
+         "    radical = B * B - 3 * a * C\n    return (-B + math.sqrt(radical)) / (3 * a)\n",
+         "-(3 * a * C) / (math.sqrt(radical) + B)", [],
+         lambda a, B, C: (-B + math.sqrt(B * B - 3 * a * C)) / (3 * a),
+         lambda a, B, C: -(3 * a * C) / (math.sqrt(B * B - 3 * a * C) + B) / (3 * a),
+         lambda a, B, C: (-B + mpmath.sqrt(B * B - 3 * a * C)) / (3 * a),
+         grid(np.geomspace(1e-3, 1, 3), np.geomspace(1e2, 1e4, 3), np.geomspace(1e-3, 1, 3)),
+         "Forsythe 1966 (the root without cancellation); minimiser of the interpolating cubic in line searches"),
 ]
 
 
