@@ -145,7 +145,10 @@ def near_one_differences(e: Expr) -> Iterator[Expr]:
     if pq is None:
         return
     p, q = pq
-    for num, den, sign in ((p, q, 1), (q, p, -1)):
+    orientations = ((p, q, 1), (q, p, -1))
+    if 1 in (p, q):  # `t − 1` or `1 − t`: no multiplier needed, and the other way round would add one
+        orientations = orientations[:1] if q == 1 else orientations[1:]
+    for num, den, sign in orientations:
         ratio = sp.powsimp(sp.together(num / den), force=False)
         m = minus_one(ratio)
         if m is not None:

@@ -133,6 +133,17 @@ def _searched(tgts: list[Node], ctx_for, deadline: Deadline) -> Iterator[Proposa
             yield Proposal(found.rule, found.title, t, found.replacement, 4, base + 10, True, found.note)
 
 
+def _best_of_each_rule(ranked: list[Verified]) -> list[Verified]:
+    """The best candidate of each rule on each target: a rule's other normal forms are no alternatives."""
+    seen: set[tuple[str, int]] = set()
+    out = []
+    for v in ranked:
+        if (v.rule, id(v.target)) not in seen:
+            seen.add((v.rule, id(v.target)))
+            out.append(v)
+    return out
+
+
 @dataclass(frozen=True)
 class Subject:
     """What the rewrites are given about one finding: its site and analysis, the module index it was read
@@ -209,6 +220,7 @@ def fixes_for(subject: Subject, cfg: Config, seconds: float = SECONDS_PER_FINDIN
                 verified.append(Verified(p.rule, title, p.target, replacement, text, imports, span, ev,
                                          p.cost, p.order, p.note))
         verified.sort(key=Verified.rank)
+        verified = _best_of_each_rule(verified)
         fixes = rechecked([v.fix() for v in verified], finding, subject.index, subject.reanalyse)
         if fixes:
             return fixes

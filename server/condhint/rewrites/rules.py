@@ -136,6 +136,10 @@ def _sqrt_and_term(node: Node) -> Match | None:
     for (s, root), (r, t) in (terms, terms[::-1]):
         p = dag.unary(root, "sqrt")
         if p is not None and dag.unary(t, "sqrt") is None:
+            if t.kind == "neg":  # `sqrt(p) + -t`: the sign goes to r, so the code reads `+ t` and `t > 0`
+                r, t = -r, t.args[0]
+            elif t.kind == "mul" and (c := dag.const_value(t.args[0])) is not None and c < 0:
+                r, t = -r, dag.mul(dag.const(-c), t.args[1])  # `-2 * kappa` as `2 * kappa` with the sign in r
             return {"s": s, "root": root, "p": p, "r": r, "t": t, "node": node}
     return None
 
@@ -152,12 +156,13 @@ def _rationalised(m: Match, ctx: Context) -> Node:
 def _sqrt_and_term_build(m: Match, ctx: Context) -> list[Node]:
     w = m["s"] * m["r"]
     sign = ctx.sign(m["t"])
-    if sign == -w:  # sqrt(p) and w·t have opposite signs everywhere: they cancel
-        return [_rationalised(m, ctx)]
-    if sign == 0:  # sign-aware: rationalise only where the two parts cancel
-        cond = dag.compare(m["t"], "<" if w == 1 else ">", dag.const(0))
-        return [dag.select(cond, _rationalised(m, ctx), m["node"])]
-    return []
+    if sign not in (0, -w):
+        return []
+    # sign-aware: rationalise only where the two parts cancel; the branch-free form where they cancel on every
+    # sample (the measurement then tells whether the code allows the other sign, where only the branch is right)
+    cond = dag.compare(m["t"], "<" if w == 1 else ">", dag.const(0))
+    aware = dag.select(cond, _rationalised(m, ctx), m["node"])
+    return [_rationalised(m, ctx), aware] if sign == -w else [aware]
 
 
 SQRT_AND_TERM = Rule(

@@ -7,7 +7,7 @@ from __future__ import annotations
 
 import ast
 import keyword
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any, Callable, TypeVar
 
 from condhint.expr import INPUT, Node, Span, topological
 from condhint.rewrites import codegen
@@ -97,31 +97,45 @@ def rebound_names(index: "ModuleIndex", target: Node) -> set[str]:
     definition holding `target` and `target`'s line: there an input spelled with that name is not what the name
     holds any more (`factor += 1` before `factor ** n - 1`), so a fix must not write it."""
     assert target.span is not None
-    start, line = index.unit_at(target.span.line).start, target.span.line
+    line = target.span.line
+    start = max((d.lineno for d in _functions(index.tree) if d.lineno <= line <= (d.end_lineno or d.lineno)),
+                default=index.unit_at(line).start)  # the innermost function holding the target, its own names
     return {name for name, lines in _stores(index.tree).items() if any(start <= ln < line for ln in lines)}
 
 
-_STORES: dict[int, tuple[ast.Module, dict[str, list[int]]]] = {}
-_STYLES: dict[int, tuple[ast.Module, codegen.Style]] = {}
+
+T = TypeVar("T")
+_PER_TREE: dict[tuple[str, int], tuple[ast.Module, Any]] = {}
+
+
+def _per_tree(what: str, tree: ast.Module, compute: Callable[[ast.Module], T]) -> T:
+    """`compute(tree)`, cached per syntax tree (every finding of a file shares it)."""
+    hit = _PER_TREE.get((what, id(tree)))
+    if hit is not None and hit[0] is tree:
+        return hit[1]
+    if len(_PER_TREE) > 24:
+        _PER_TREE.clear()
+    out = compute(tree)
+    _PER_TREE[(what, id(tree))] = (tree, out)
+    return out
 
 
 def _style(tree: ast.Module) -> codegen.Style:
-    """The module's import style (cached per syntax tree: every finding of a file shares it)."""
-    hit = _STYLES.get(id(tree))
-    if hit is not None and hit[0] is tree:
-        return hit[1]
-    if len(_STYLES) > 8:
-        _STYLES.clear()
-    style = codegen.Style.of(tree)
-    _STYLES[id(tree)] = (tree, style)
-    return style
+    """The module's import style."""
+    return _per_tree("style", tree, codegen.Style.of)
+
+
+def _functions(tree: ast.Module) -> list[ast.FunctionDef | ast.AsyncFunctionDef]:
+    return _per_tree("functions", tree, lambda t: [n for n in ast.walk(t)
+                                                   if isinstance(n, (ast.FunctionDef, ast.AsyncFunctionDef))])
 
 
 def _stores(tree: ast.Module) -> dict[str, list[int]]:
-    """Lines where each name is assigned (cached per syntax tree)."""
-    hit = _STORES.get(id(tree))
-    if hit is not None and hit[0] is tree:
-        return hit[1]
+    """Lines where each name is assigned."""
+    return _per_tree("stores", tree, _find_stores)
+
+
+def _find_stores(tree: ast.Module) -> dict[str, list[int]]:
     out: dict[str, list[int]] = {}
     for n in ast.walk(tree):
         if isinstance(n, ast.Name) and isinstance(n.ctx, ast.Store):
@@ -130,7 +144,4 @@ def _stores(tree: ast.Module) -> dict[str, list[int]]:
             out.setdefault(f"{n.value.id}.{n.attr}", []).append(n.lineno)
         elif isinstance(n, ast.Subscript) and isinstance(n.ctx, ast.Store) and isinstance(n.value, ast.Name):
             out.setdefault(f"{n.value.id}[", []).append(n.lineno)  # any item of it
-    if len(_STORES) > 8:
-        _STORES.clear()
-    _STORES[id(tree)] = (tree, out)
     return out
