@@ -11,6 +11,7 @@ half-angle form of cos − 1; NIST DLMF ch. 4, Goldberg 1991). Everything propos
 """
 from __future__ import annotations
 
+from fractions import Fraction
 from typing import Any, Callable, Iterator
 
 import sympy as sp
@@ -113,9 +114,17 @@ def _with_primitives(e: Expr) -> Expr:
     return e
 
 
+def _opened_primitives(e: Expr) -> Expr:
+    """expm1(u) as exp(u) − 1 and log1p(u) as log(1 + u), so that algebra sees through them
+    (`−expm1(−λ) − 1` is `−exp(−λ)`); the primitives come back where they still serve."""
+    e = e.replace(lambda x: isinstance(x, _expm1()), lambda x: sp.exp(x.args[0]) - 1)
+    return e.replace(lambda x: isinstance(x, _log1p()), lambda x: sp.log(1 + x.args[0]))
+
+
 def _normal_forms(e: Expr) -> list[Expr]:
     """Normal forms of `e` in which cancelling operands have been combined, shortest first."""
     forms: list[Expr] = []
+    e = _opened_primitives(e)
     for f in (sp.together, _factor_over_atoms, sp.factor, sp.cancel, lambda x: sp.together(x.rewrite(sp.exp))):
         try:
             g = _tidy_sign(_log1p_direct(_with_primitives(f(e))))
@@ -215,4 +224,15 @@ def candidates(node: Node, ctx: Context, kind: str) -> list[Node]:
                 continue
             if len(out) >= MAX_CANDIDATES:
                 return out
-    return [c for c in out if any(n.kind in ("expm1", "log1p", "sin") for n in topological(c))]
+    out = [c for c in out if any(n.kind in ("expm1", "log1p", "sin") for n in topological(c))]
+    return out + [b for c in out if (b := _branch_near_one(c, node)) is not None] if kind == "logs" else out
+
+
+def _branch_near_one(candidate: Node, original: Node) -> Node | None:
+    """`log1p(d)` only where |d| < 1/2, the original logarithm elsewhere: far from one, `log1p(d)` adds
+    d's rounding error to a 1 + d that is no longer near one, where the original formula may be exact."""
+    d = next((n.args[0] for n in topological(candidate) if n.kind == "log1p"), None)
+    if d is None:
+        return None
+    near = dag.compare(dag.call("abs", d), "<", dag.const(Fraction(1, 2)))
+    return dag.select(near, candidate, original)
