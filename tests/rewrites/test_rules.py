@@ -247,6 +247,17 @@ CASES = [
          lambda a, B, C: (-B + mpmath.sqrt(B * B - 3 * a * C)) / (3 * a),
          grid(np.geomspace(1e-3, 1, 3), np.geomspace(1e2, 1e4, 3), np.geomspace(1e-3, 1, 3)),
          "Forsythe 1966 (the root without cancellation); minimiser of the interpolating cubic in line searches"),
+    Case("erf-difference", "import math\n"
+         "def tail_mass(a, b):  # condhint: 3 <= a <= 4, 5 <= b <= 6\n    return math.erf(a) - math.erf(b)\n",
+         "math.erfc(b) - math.erfc(a)", [], lambda a, b: math.erf(a) - math.erf(b),
+         lambda a, b: math.erfc(b) - math.erfc(a), lambda a, b: mpmath.erf(a) - mpmath.erf(b),
+         grid(np.linspace(3, 4, 5), np.linspace(5, 6, 5)), "NIST DLMF 7.2.2 (erfc = 1 − erf) and 7.4.1 (erf is odd)"),
+    Case("erf-difference", "import numpy as np\nimport scipy.special as sc\n"
+         "def band(x, y):  # condhint: 3 <= x <= 4, 5 <= y <= 6\n    return sc.erf(-np.abs(x)) + sc.erf(np.abs(y))\n",
+         "sc.erfc(np.abs(x)) - sc.erfc(np.abs(y))", [], lambda x, y: math.erf(-abs(x)) + math.erf(abs(y)),
+         lambda x, y: math.erfc(abs(x)) - math.erfc(abs(y)), lambda x, y: mpmath.erf(-abs(x)) + mpmath.erf(abs(y)),
+         grid(np.linspace(3, 4, 5), np.linspace(5, 6, 5)),
+         "NIST DLMF 7.2.2 and 7.4.1; scipy.special spelling taken from the site"),
 ]
 
 
@@ -325,6 +336,10 @@ MUST_NOT_FIRE = [
     ("log2", "import math\ndef f(x):  # condhint: 1e-3 <= x <= 1e3\n    return math.log(x) / math.log(2)\n",
      "math.log(x) / math.log(2)", "measured"),
     ("exp2", "import math\ndef f(x):  # condhint: -10 <= x <= 10\n    return 2 ** x\n", "2 ** x", "measured"),
+    ("erf-difference", "import math\ndef f(a, b):  # condhint: 0 <= a <= 0.5, 2 <= b <= 3\n"
+     "    return math.erf(a) - math.erf(b)\n", "math.erf(a) - math.erf(b)", "measured"),
+    ("erf-difference", "import math\ndef f(a, b):  # condhint: 3 <= a <= 4, 5 <= b <= 6\n"
+     "    return -math.erf(a) - math.erf(b)\n", "-math.erf(a) - math.erf(b)", "precondition"),
     ("near-one-difference", "import math\ndef f(x, p):  # condhint: 2 <= x <= 10, 1 <= p <= 3\n    return x**p - 1\n",
      "x**p - 1", "measured"),
     ("near-one-difference", "def f(a, b):  # condhint: 1 <= a <= 2, 1 <= b <= 2\n    return a - b\n", "a - b",

@@ -103,6 +103,9 @@ def is_expression(text: str) -> bool:
         return False
 
 
+MODULES = ("math", "numpy", "scipy.special")  # the modules whose functions fixes spell
+
+
 @dataclass
 class Style:
     """A module's imports, read from its syntax tree."""
@@ -117,16 +120,18 @@ class Style:
     def of(cls, tree: ast.Module) -> "Style":
         s = cls()
         for node in ast.walk(tree):
-            if isinstance(node, ast.Import):
+            if isinstance(node, ast.Import) or (isinstance(node, ast.ImportFrom) and node.level == 0 and
+                                                 node.module == "scipy" and any(a.name == "special" for a in node.names)):
                 for a in node.names:
-                    mod = {"numpy": "numpy", "math": "math"}.get(a.name)
+                    full = f"{node.module}.{a.name}" if isinstance(node, ast.ImportFrom) else a.name
+                    mod = full if full in MODULES else None
                     if mod is not None:
                         s.aliases.setdefault(mod, a.asname or a.name)
                         s.alias_module[a.asname or a.name] = mod
                     else:
                         s.bound.add((a.asname or a.name).split(".")[0])
             elif isinstance(node, ast.ImportFrom):
-                mod = node.module if node.module in ("math", "numpy") and node.level == 0 else None
+                mod = node.module if node.module in MODULES and node.level == 0 else None
                 for a in node.names:
                     local = a.asname or a.name
                     if mod is not None and a.name != "*":
@@ -146,11 +151,13 @@ class Style:
 class Spelling:
     """How one site spells functions; collects the import statements the spellings need."""
 
-    def __init__(self, style: Style, module: str, from_style: bool, narrow: bool = False) -> None:
+    def __init__(self, style: Style, module: str, from_style: bool, narrow: bool = False,
+                 also: tuple[str, ...] = ()) -> None:
         self.style = style
         self.module = module
         self.from_style = from_style
         self.narrow = narrow  # only numpy's functions keep the site's format
+        self.also = also  # the other modules the site calls, imported as modules: they take its values
         self.imports: list[str] = []
 
     @classmethod
@@ -173,7 +180,8 @@ class Spelling:
                     seen[(style.local_module[callee], True)] += 1
         if seen:
             (module, from_style), _ = seen.most_common(1)[0]
-            return cls(style, module, from_style)
+            also = tuple(m for (m, local), _ in seen.most_common() if m != module and not local)
+            return cls(style, module, from_style, also=also)
         module = "numpy" if "numpy" in style.aliases and "math" not in style.aliases and \
             "math" not in style.from_imports else "math"
         from_style = module in style.from_imports and module not in style.aliases
@@ -192,8 +200,9 @@ class Spelling:
         builtin = generated.get("builtins")
         if builtin is not None and not (self.array_style and "numpy" in generated):
             return builtin
-        other = "math" if self.module == "numpy" else "numpy"
-        for mod in (self.module,) if self.narrow else (self.module, other):
+        # numpy code may pass arrays, which `math` cannot take: only other modules fall back to numpy or math
+        fallback = () if self.narrow or self.module == "numpy" else ("numpy", "math")
+        for mod in dict.fromkeys((self.module, *self.also, *fallback)):
             attr = generated.get(mod)
             if attr is None:
                 continue

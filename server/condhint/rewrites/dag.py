@@ -66,6 +66,15 @@ def select(cond: Node, if_true: Node, if_false: Node) -> Node:
     return Node(SELECT, (cond, if_true, if_false))
 
 
+def negated(a: Node) -> Node:
+    """−a written the way a person would: `x` for −(−x), `b - a` for −(a − b) (exact in floating point too)."""
+    if a.kind == "neg":
+        return a.args[0]
+    if a.kind == "sub":
+        return sub(a.args[1], a.args[0])
+    return neg(a)
+
+
 def scaled(c: int | Fraction, a: Node) -> Node:
     """c·a written the way a person would: `a`, `-a`, `2 * a`, `a / 2`."""
     c = Fraction(c)

@@ -367,6 +367,35 @@ TAN_MINUS_SIN = Rule(
     _difference_of("tan", "sin"), _tan_sin)
 
 
+# ---- the error function (NIST DLMF 7.2.2: erfc = 1 − erf; 7.4.1: erf is odd) -----------------------------------
+def _erf_difference_match(node: Node) -> Match | None:
+    """erf(a) − erf(b), also written erf(a) + erf(−b) or −erf(b) + erf(a)."""
+    terms = dag.signed_terms(node)
+    if terms is None:
+        return None
+    (s1, e1), (s2, e2) = terms
+    x1, x2 = dag.unary(e1, "erf"), dag.unary(e2, "erf")
+    if x1 is None or x2 is None or s1 == s2 == -1:
+        return None
+    (_, a), (sb, b) = ((s1, x1), (s2, x2)) if s1 == 1 else ((s2, x2), (s1, x1))
+    return {"a": a, "b": b if sb == -1 else dag.negated(b)}
+
+
+def _erf_difference_build(m: Match, ctx: Context) -> list[Node]:
+    """erfc(b) − erfc(a) where a > 0 (the tails of positive arguments), erfc(−a) − erfc(−b) where a ≤ 0."""
+    a, b = m["a"], m["b"]
+    upper = dag.sub(dag.call("erfc", b), dag.call("erfc", a))
+    lower = dag.sub(dag.call("erfc", dag.negated(a)), dag.call("erfc", dag.negated(b)))
+    aware = dag.select(dag.compare(a, ">", dag.const(0)), upper, lower)
+    sign = ctx.sign(a)
+    return [upper, aware] if sign == 1 else [lower, aware] if sign == -1 else [aware]
+
+
+ERF_DIFFERENCE = Rule(
+    "erf-difference", "Write the difference of error functions with erfc", "any a, b",
+    "NIST DLMF 7.2.2 and 7.4.1", _erf_difference_match, _erf_difference_build)
+
+
 # ---- the quadratic formula (Forsythe 1966; Goldberg 1991) -----------------------------------------------------------------
 def _twice(node: Node) -> Node | None:
     """a for 2*a, a*2; the literal 1 for the literal 2."""
@@ -447,7 +476,7 @@ QUADRATIC_ROOT = Rule(
 
 RULES: tuple[Rule, ...] = (  # specific identities first, general algebra last
     QUADRATIC_ROOT, ASINH, LOGADDEXP, HYPOT, COMPOUND_POWER, LOG_DIFFERENCE, EXP_DIFFERENCE, ONE_MINUS_COS,
-    COS_MINUS_ONE, TAN_MINUS_SIN, COS_DIFFERENCE, SIN_DIFFERENCE, EXPM1, LOG1P, NEAR_ONE_DIFFERENCE, LOG_NEAR_ONE, SQRT_DIFFERENCE, SQRT_AND_TERM,
+    COS_MINUS_ONE, TAN_MINUS_SIN, COS_DIFFERENCE, SIN_DIFFERENCE, ERF_DIFFERENCE, EXPM1, LOG1P, NEAR_ONE_DIFFERENCE, LOG_NEAR_ONE, SQRT_DIFFERENCE, SQRT_AND_TERM,
     COMBINE_FRACTIONS, QUOTIENT_MINUS_ONE, DIFFERENCE_OF_SQUARES, LOG_SUM_EXP, LOG2, EXP2,
 )
 BY_ID = {r.id: r for r in RULES}
