@@ -35,6 +35,12 @@ def _log(v: float) -> float:
     return math.log(v) if v > 0 else -math.inf
 
 
+def _deep(value: Callable[[], object]) -> object:
+    """An mpmath value at 800 digits: 1 − e^−700 needs 304 of them to differ from one."""
+    with mpmath.workdps(800):
+        return +value()
+
+
 def geo(lo: float, hi: float, n: int = 25) -> list[tuple[float]]:
     return [(float(v),) for v in np.geomspace(lo, hi, n)]
 
@@ -258,6 +264,21 @@ CASES = [
          lambda x, y: math.erfc(abs(x)) - math.erfc(abs(y)), lambda x, y: mpmath.erf(-abs(x)) + mpmath.erf(abs(y)),
          grid(np.linspace(3, 4, 5), np.linspace(5, 6, 5)),
          "NIST DLMF 7.2.2 and 7.4.1; scipy.special spelling taken from the site"),
+    # A logarithm of a value near one that the code computes in a cancellation-free way already (C = 1 − e^−λ,
+    # the Planck distribution's normaliser): log1p of what separates it from one. Values below binary64's range
+    # (e^−700·e^−83 at λ = 783) agree by definition, which the references of both formulas cannot resolve.
+    Case("log-near-one", "from math import exp, expm1, log\n"
+         "def log_occupied(lam):  # condhint: 1 <= lam <= 800\n    C = -expm1(-lam)\n    return log(C)\n",
+         "log1p(-exp(-lam))", ["from math import log1p"], lambda lam: math.log(-math.expm1(-lam)),
+         lambda lam: math.log1p(-math.exp(-lam)), lambda lam: _deep(lambda: mpmath.log(-mpmath.expm1(-lam))), geo(1, 700),
+         "Goldberg 1991 (log1p); NIST DLMF 4.2.1"),
+    Case("log-near-one", "from math import exp, log, tanh\n"
+         "def log_tanh(a):  # condhint: 0.1 <= a <= 1400\n    return log(tanh(a / 2))\n",
+         "log1p(-(2 / (exp(a) + 1))) if abs(2 / (exp(a) + 1)) < 0.5 else log(tanh(a / 2))", ["from math import log1p"],
+         lambda a: math.log(math.tanh(a / 2)),
+         lambda a: math.log1p(-(2 / (math.exp(a) + 1))) if abs(2 / (math.exp(a) + 1)) < 0.5 else math.log(math.tanh(a / 2)),
+         lambda a: _deep(lambda: mpmath.log(mpmath.tanh(a / 2))), geo(0.1, 700),
+         "NIST DLMF 4.35.2 (tanh through exp); Goldberg 1991 (log1p)"),
 ]
 
 

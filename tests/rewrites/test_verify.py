@@ -84,3 +84,23 @@ def test_proofs_use_sympy_and_give_up_within_their_budget():
     t0 = time.perf_counter()
     assert not prove(node, wrong, bench, 0.5)
     assert time.perf_counter() - t0 < 2.0
+
+
+PLANCK = ("from math import exp, expm1, log\n"
+          "def entropy(lam):  # condhint: 1 <= lam <= 1e6\n"
+          "    C = -expm1(-lam)\n"
+          "    return lam * exp(-lam) / C - log(C)\n")
+
+
+def test_values_below_binary64_range_agree():
+    # For λ ≳ 750 the entropy, about λ·e^−λ, is below binary64's smallest subnormal, and the reference
+    # of log(C) = log(1 − e^−λ) needs over 320 digits to differ from 0. A rewrite of log(C) that is exact there
+    # (log1p(−e^−λ), NIST DLMF 4.2.1) must not be rejected for a disagreement no binary64 result can show.
+    ev, *_ = _judge(PLANCK, "log(C)", lambda node: dag.call("log1p", dag.neg(dag.call("exp", dag.neg(
+        next(n for n in _inputs(node) if n.name == "lam"))))))
+    assert ev.ok, ev.reason
+
+
+def _inputs(node):
+    from condhint.expr import INPUT, topological
+    return [n for n in topological(node) if n.kind == INPUT]

@@ -234,5 +234,5 @@ def _branch_near_one(candidate: Node, original: Node) -> Node | None:
     d = next((n.args[0] for n in topological(candidate) if n.kind == "log1p"), None)
     if d is None:
         return None
-    near = dag.compare(dag.call("abs", d), "<", dag.const(Fraction(1, 2)))
+    near = dag.compare(dag.call("abs", d.args[0] if d.kind == "neg" else d), "<", dag.const(Fraction(1, 2)))
     return dag.select(near, candidate, original)
