@@ -72,3 +72,65 @@ def test_must_not_fire_a_name_rebound_after_its_value_was_taken():
     finding, fixes, _ = fixes_of(src)
     assert finding.expression == "1 - y" and not any("x" in f.replacement for f in fixes)
 
+
+# ---- a switch that leaves no loss behind ---------------------------------------------------------------------
+J2 = """
+import numpy as np
+
+
+def spherical_j2(x):  # condhint: 1e-3 <= x <= 100
+    return (3 / x**3 - 1 / x) * np.sin(x) - 3 / x**2 * np.cos(x)
+
+
+@np.vectorize
+def plotted(x):
+    return x
+"""
+# j₂(x) = x² Σ (−x²/2)ᵏ / (k! (2k + 5)!!)  (NIST DLMF 10.53.1)
+J2_TERMS = [(Fraction((-1) ** k, 2 ** k * math.factorial(k) * math.prod(range(1, 2 * k + 6, 2))), 2 * k + 2)
+            for k in range(11)]
+
+
+def _j2(x):
+    """j₂(x) = (3/x³ − 1/x) sin x − 3/x² cos x (NIST DLMF 10.49.3)."""
+    return (3 / x**3 - 1 / x) * mpmath.sin(x) - 3 / x**2 * mpmath.cos(x)
+
+
+def test_the_spherical_bessel_j2_gets_its_series_below_a_round_switch():
+    # Also: the decorated definition after it is blanked with its decorator for the re-analysis (it did not parse).
+    fix = best_fix(J2)
+    orig = "(3 / x**3 - 1 / x) * np.sin(x) - 3 / x**2 * np.cos(x)"
+    switch, series = _branch(fix.replacement, "np.where", orig)
+    assert switch == 2.0 and series == _written(J2_TERMS, "x") == (
+        "x ** 2 / 15 - x ** 4 / 210 + x ** 6 / 7560 - x ** 8 / 498960 + x ** 10 / 51891840 - "
+        "x ** 12 / 7783776000 + x ** 14 / 1587890304000 - x ** 16 / 422378820864000 + "
+        "x ** 18 / 141919283810304000 - x ** 20 / 58754583497465856000 + x ** 22 / 29377291748732928000000")
+    plain = lambda x: (3 / x**3 - 1 / x) * math.sin(x) - 3 / x**2 * math.cos(x)  # noqa: E731
+    stable = lambda x: _series(J2_TERMS, x) if abs(x) < switch else plain(x)  # noqa: E731
+    pts = [(float(t),) for t in np.geomspace(1e-3, 5, 200)] + [(1.9999,), (2.0,), (2.0001,)]
+    assert worst_loss(plain, _j2, pts) >= 13
+    assert worst_loss(stable, _j2, pts) <= 1.0
+    # eight terms (the search's former limit) reach u/4 only below 0.9, where the original still loses 2.2 digits
+    assert worst_loss(plain, _j2, [(float(t),) for t in np.linspace(0.9, 0.95, 200)]) >= 2.0
+
+
+def test_the_switch_is_where_the_original_no_longer_loses_two_digits():
+    # 1 − (x/2)/tan(x/2) ≈ x²/12: six terms of its series reach u/4 only below 0.2, where the original still
+    # loses 2.5 digits (the re-analysis refused that fix; the switch was judged on a coarse grid before it was
+    # rounded down). Measured at the switch as written, ten terms win: they reach 0.9.
+    src = ("import numpy as np\n\n\ndef rate_factor(nm):  # condhint: 1e-6 <= nm <= 3\n"
+           "    return (1 - 0.5 * nm / np.tan(0.5 * nm)) / nm**2\n")
+    fix = best_fix(src)
+    switch, series = _branch(fix.replacement, "np.where", "(1 - 0.5 * nm / np.tan(0.5 * nm)) / nm**2")
+    # (1 − (x/2) cot(x/2)) / x² = Σₙ (−1)ⁿ⁺¹ B₂ₙ x²ⁿ⁻² / (2n)!  (NIST DLMF 4.19.6, Bernoulli numbers)
+    terms = [(Fraction(-(-1) ** n) * Fraction(str(sympy.bernoulli(2 * n))) / math.factorial(2 * n), 2 * n - 2)
+             for n in range(1, 11)]
+    assert switch == 0.9 and series == _written(terms, "nm")
+    plain = lambda x: (1 - 0.5 * x / math.tan(0.5 * x)) / x**2  # noqa: E731
+    stable = lambda x: _series(terms, x) if abs(x) < switch else plain(x)  # noqa: E731
+    exact = lambda x: (1 - x / 2 / mpmath.tan(x / 2)) / x**2  # noqa: E731
+    pts = [(float(t),) for t in np.geomspace(1e-6, 3, 200)] + [(0.8999,), (0.9,), (0.9001,)]
+    assert worst_loss(plain, exact, pts) >= 12
+    assert worst_loss(stable, exact, pts) <= 1.5
+    # why a switch at 0.2 was not enough: just past it the original loses more than two digits
+    assert worst_loss(plain, exact, [(float(t),) for t in np.linspace(0.2, 0.25, 200)]) >= 2.0

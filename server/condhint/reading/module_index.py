@@ -194,8 +194,13 @@ class ModuleIndex:
         keep = self.unit_at(line)
         for u in self.units[1:]:
             if u != keep:
-                lines[u.start - 1:u.end] = [""] * (u.end - u.start + 1)
+                first = self.decorated_from(u)  # a decorator left without its definition would not parse
+                lines[first - 1:u.end] = [""] * (u.end - first + 1)
         return "\n".join(lines)
+
+    def decorated_from(self, unit: Unit) -> int:
+        """The first line of a definition's decorators (its own first line when it has none)."""
+        return min([unit.start, *(d.lineno for d in getattr(self.statement(unit), "decorator_list", []))])
 
     @cached_property
     def context_key(self) -> str:
