@@ -73,6 +73,41 @@ def test_must_not_fire_a_name_rebound_after_its_value_was_taken():
     assert finding.expression == "1 - y" and not any("x" in f.replacement for f in fixes)
 
 
+# ---- choices written as numpy's where ------------------------------------------------------------------------
+SINC_EXCESS = "def sinc_excess(theta):  # condhint: 1e-8 <= theta <= 10\n    return theta - {sin}(theta)\n"
+SIN_TERMS = [(Fraction((-1) ** (k + 1), math.factorial(2 * k + 1)), 2 * k + 1) for k in range(1, 9)]
+
+
+@pytest.mark.parametrize("imports, sin, where", [
+    ("import numpy as np\n", "np.sin", "np.where"),
+    ("import numpy\n", "numpy.sin", "numpy.where"),
+    ("from numpy import sin, where\n", "sin", "where"),
+])
+def test_a_series_branch_in_numpy_code_is_written_with_where(imports, sin, where):
+    fix = best_fix(f"{imports}\n\n{SINC_EXCESS.format(sin=sin)}")
+    switch, series = _branch(fix.replacement, where, f"theta - {sin}(theta)")
+    # x − sin x = x³/3! − x⁵/5! + … (NIST DLMF ch. 4, Maclaurin series of sin), eight terms below 0.9
+    assert fix.rule == "series" and switch == 0.9 and fix.imports == []
+    assert series == ("theta ** 3 / 6 - theta ** 5 / 120 + theta ** 7 / 5040 - theta ** 9 / 362880 + "
+                      "theta ** 11 / 39916800 - theta ** 13 / 6227020800 + theta ** 15 / 1307674368000 - "
+                      "theta ** 17 / 355687428096000")
+    stable = lambda t: _series(SIN_TERMS, t) if abs(t) < switch else t - math.sin(t)  # noqa: E731
+    pts = [(float(t),) for t in np.geomspace(1e-8, 10, 80)] + [(0.8999,), (0.9,), (0.9001,)]
+    exact = lambda t: t - mpmath.sin(t)  # noqa: E731
+    assert worst_loss(lambda t: t - math.sin(t), exact, pts) >= 15
+    assert worst_loss(stable, exact, pts) <= 1.0
+
+
+def test_must_not_fire_where_a_branch_not_taken_would_overflow():
+    # np.where computes both branches: θ¹⁷ overflows for θ near 1e300 (OverflowError on a Python float, a
+    # warning on an array) although that branch is not taken there. `x if c else y` computes one branch only.
+    src = "import numpy as np\n\n\n" + SINC_EXCESS.format(sin="np.sin").replace("10\n", "1e300\n")
+    finding, fixes, _ = fixes_of(src)
+    assert finding.expression == "theta - np.sin(theta)" and fixes == []
+    fix = best_fix("import math\n\n\n" + SINC_EXCESS.format(sin="math.sin").replace("10\n", "1e300\n"))
+    assert fix.rule == "series" and fix.replacement.endswith(" else theta - math.sin(theta)")
+
+
 # ---- a switch that leaves no loss behind ---------------------------------------------------------------------
 J2 = """
 import numpy as np

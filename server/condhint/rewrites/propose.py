@@ -199,6 +199,8 @@ def fixes_for(subject: Subject, cfg: Config, seconds: float = SECONDS_PER_FINDIN
             if (id(p.target), text) in seen or text == p.target.text:
                 continue
             seen.add((id(p.target), text))
+            if writer(p.target).evaluates_both_branches and not bench.branches_finite(replacement):
+                continue  # `np.where` would compute a branch that overflows or divides by zero
             cand_root = dag.substitute(site.root, p.target, replacement)
             try:
                 ev = bench.judge(p.target, replacement, cand_root, p.approximate, deadline)
