@@ -13,7 +13,9 @@ import numpy as np
 import pytest
 import sympy
 
-from tests.rewrites.support import best_fix, fixes_of, worst_loss
+from condhint.config import Config
+from condhint.rewrites.scalar_view import scalar_view
+from tests.rewrites.support import analysed, best_fix, fixes_of, site_with, worst_loss
 
 
 def _half_angle(x: float) -> float:
@@ -71,6 +73,47 @@ def test_must_not_fire_a_name_rebound_after_its_value_was_taken():
            "    y = np.cos(x)\n    x = 2.0 * x\n    return 1 - y\n")
     finding, fixes, _ = fixes_of(src)
     assert finding.expression == "1 - y" and not any("x" in f.replacement for f in fixes)
+
+
+# ---- reductions as inputs ------------------------------------------------------------------------------------
+ROTVEC = """
+import numpy as np
+
+
+def rotvec_coefficient(rotvec):  # condhint: 1e-9 <= rotvec <= 1e-1, len(rotvec) == 3
+    theta = np.linalg.norm(rotvec)
+    return (1 - np.cos(theta)) / theta ** 2
+"""
+
+
+def test_an_elementwise_formula_of_a_reduction_gets_the_scalar_rules():
+    fix = best_fix(ROTVEC)
+    assert (fix.rule, fix.replacement, fix.imports) == ("one-minus-cos", "2 * np.sin(theta / 2) ** 2", [])
+    assert fix.measured_digits_lost_before >= 14 and fix.measured_digits_lost_after <= 1
+    # θ = |v| of vectors with elements in [1e-9, 0.1]: θ in [1.7e-9, 0.18]
+    pts = [(float(t),) for t in np.geomspace(1.7e-9, 0.18, 60)]
+    exact = lambda t: 1 - mpmath.cos(t)  # noqa: E731
+    assert worst_loss(lambda t: 1 - math.cos(t), exact, pts) >= 15
+    assert worst_loss(_half_angle, exact, pts) <= 0.6
+
+
+def test_the_reduction_result_is_an_input_with_the_range_of_its_sampled_values():
+    ma = analysed(ROTVEC)
+    site, _ = site_with(ma, "(1 - np.cos(theta)) / theta ** 2")
+    view, _ = scalar_view(site, Config())
+    (r,) = [view.ranges[k] for k in ("np.linalg.norm(rotvec)",)]
+    assert r.source == "reduction" and 1e-9 <= r.interval.low and r.interval.high <= math.sqrt(3) * 0.1
+
+
+def test_must_not_fire_no_scalar_view_of_two_reductions_of_one_array():
+    # mean(x²) and mean(x)² are not independent inputs: sampling them apart would measure what never occurs.
+    ma = analysed("import numpy as np\n\n\ndef raw_var(x):\n    return np.mean(x ** 2) - np.mean(x) ** 2\n")
+    site, _ = site_with(ma, "np.mean(x ** 2) - np.mean(x) ** 2")
+    assert scalar_view(site, Config()) is None
+    # and the array rule still gives its fix
+    fix = best_fix("import numpy as np\n\n\ndef raw_var(x):  # condhint: 1e3 <= x <= 1e3 + 1\n"
+                   "    return np.mean(x ** 2) - np.mean(x) ** 2\n")
+    assert (fix.rule, fix.replacement) == ("two-pass-variance", "np.var(x)")
 
 
 # ---- choices written as numpy's where ------------------------------------------------------------------------
