@@ -103,12 +103,14 @@ class Bench:
         return self._signs[key]
 
     def branches_finite(self, candidate: Node) -> bool:
-        """Whether both branches of every choice in the candidate are finite wherever the original is: numpy's
+        """Whether both branches of every choice the candidate adds are finite wherever the original is: numpy's
         `where` evaluates both, so a branch that is not taken must not overflow or divide by zero either (on
-        Python floats it would raise; on arrays it would warn)."""
+        Python floats it would raise; on arrays it would warn). The code's own choices stay as they are."""
         finite = np.isfinite(self.orig64)
+        own = {id(n) for n in topological(self.site.root)}
         for n in topological(candidate):
-            if n.kind == SELECT and any(np.any(finite & ~np.isfinite(self.values(b))) for b in n.args[1:]):
+            if n.kind == SELECT and id(n) not in own and any(
+                    np.any(finite & ~np.isfinite(self.values(b))) for b in n.args[1:]):
                 return False
         return True
 
