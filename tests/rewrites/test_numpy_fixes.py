@@ -105,6 +105,17 @@ def test_the_reduction_result_is_an_input_with_the_range_of_its_sampled_values()
     assert r.source == "reduction" and 1e-9 <= r.interval.low and r.interval.high <= math.sqrt(3) * 0.1
 
 
+def test_a_guard_on_the_reduction_result_filters_the_view_samples():
+    # scipy's pattern: the formula runs only where θ ≥ 1e-4, so its worst measured loss is 1 − cos(1e-4)'s, about
+    # 8 digits, not the 15.6 of θ near 1e-9 (the guard is a condition on the reduction, kept in the view).
+    src = ROTVEC.replace("    return (1", "    if theta < 1e-4:\n        return 0.5 - theta ** 2 / 24\n    return (1")
+    fix = best_fix(src)
+    assert (fix.rule, fix.replacement) == ("one-minus-cos", "2 * np.sin(theta / 2) ** 2")
+    with mpmath.workdps(60):
+        at_guard = worst_loss(lambda t: 1 - math.cos(t), lambda t: 1 - mpmath.cos(t), [(1e-4,)])
+    assert abs(fix.measured_digits_lost_before - at_guard) < 0.5 and fix.measured_digits_lost_after <= 1
+
+
 def test_must_not_fire_no_scalar_view_of_two_reductions_of_one_array():
     # mean(x²) and mean(x)² are not independent inputs: sampling them apart would measure what never occurs.
     ma = analysed("import numpy as np\n\n\ndef raw_var(x):\n    return np.mean(x ** 2) - np.mean(x) ** 2\n")
