@@ -107,3 +107,6 @@ class Site:
     # (`reading.inline.Call` records: function, call line, def line)
     inlined: dict[int, tuple[Any, ...]] = field(default_factory=dict, repr=False)
     arrays: dict[str, Interval | None] = field(default_factory=dict)  # array inputs -> declared length (None: default)
+    # inputs -> the line after whose assignments they hold the value their text names (a fix may spell them only
+    # where no assignment lies between that line and its own)
+    held_after: dict[int, int] = field(default_factory=dict, repr=False)

@@ -247,12 +247,14 @@ def test_sympy_symbols_are_not_floating_point_numbers(analyse_src):
     assert codes("y = 1e15\na = (y + 1) ** 0.5 - y ** 0.5\n") == ["CH101"]
 
 
-def test_np_where_is_piecewise_and_only_the_chosen_branch_counts():
+@pytest.mark.parametrize("imports, np", [("import numpy as np", "np."), ("import numpy", "numpy."),
+                                         ("from numpy import exp, where", "")])
+def test_np_where_is_piecewise_and_only_the_chosen_branch_counts(imports, np):
     # Outside the guarded regime exp(x) - 1 still loses about log10(1/x) digits (Goldberg 1991): the worst
-    # point is just above the switch, x ≈ 1e-5, never inside the series branch.
-    (f,) = findings("import numpy as np\ndef f(x):  # condhint: 1e-12 <= x <= 1\n"
-                    "    return np.where(x < 1e-5, x + x*x/2, np.exp(x) - 1)\n")
-    assert f.expression == "np.exp(x) - 1" and f.worst_at["x"] >= 1e-5
+    # point is just above the switch, x ≈ 1e-5, never inside the series branch. The same in every spelling.
+    (f,) = findings(f"{imports}\ndef f(x):  # condhint: 1e-12 <= x <= 1\n"
+                    f"    return {np}where(x < 1e-5, x + x*x/2, {np}exp(x) - 1)\n")
+    assert f.expression == f"{np}exp(x) - 1" and f.worst_at["x"] >= 1e-5
     assert 4.0 <= f.measured_digits_lost <= 5.5
 
 

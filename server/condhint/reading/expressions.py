@@ -55,7 +55,7 @@ class Converter:
         text = self.w.source.segment(self.w.source.span(expr))
         node = self._inputs.get(text)
         if node is None:
-            node = self.w.input(text, is_int)
+            node = self.w.input(text, is_int, read=True)
             self._inputs[text] = node
         return node
 

@@ -52,6 +52,8 @@ class Walker:
         self._comment_lines = index.comment_at
         self._claimed: set[int] = set()
         self._bindings: dict[int, Binding] = {}
+        self.line = 0  # the line of the statement being read
+        self._held_after: dict[int, int] = {}  # input -> the line after whose assignments it holds its name's value
         self._inputs: dict[str, dict[str, Node]] = {}
         self.recurrences: list[Recurrence] = []  # loops read as recurrences (`reading/recurrences.py`)
         # calls into the module's own functions (`reading/inline.py`): which are inlinable, the chain of calls
@@ -87,13 +89,18 @@ class Walker:
         self.sites = [s for s in self.sites if id(s.root) not in inner]
         return self.sites
 
-    def input(self, name: str, is_int: bool = False, like: Node | None = None, fmt: Format | None = None) -> Node:
+    def input(self, name: str, is_int: bool = False, like: Node | None = None, fmt: Format | None = None, *,
+              read: bool = False) -> Node:
         """An input: in the format of the value it stands for (`like`), a stated one (`fmt`), or the default
-        (binary64 Python floats unless configured otherwise)."""
+        (binary64 Python floats unless configured otherwise). It holds the value its name has after the
+        statement being read binds it, or (`read`: a value only read there) before that statement."""
         if like is not None and fmt is None:
-            return Node(INPUT, name=name, text=name, is_int=is_int, format=like.format, weak=like.weak)
-        weak = fmt is None and self.default_format is BINARY64  # a Python float
-        return Node(INPUT, name=name, text=name, is_int=is_int, format=fmt or self.default_format, weak=weak)
+            node = Node(INPUT, name=name, text=name, is_int=is_int, format=like.format, weak=like.weak)
+        else:
+            weak = fmt is None and self.default_format is BINARY64  # a Python float
+            node = Node(INPUT, name=name, text=name, is_int=is_int, format=fmt or self.default_format, weak=weak)
+        self._held_after[id(node)] = self.line - 1 if read else self.line
+        return node
 
     def scope_inputs(self, scope: str) -> dict[str, Node]:
         """The inputs of a scope by source text, shared by all its expressions."""
@@ -143,6 +150,7 @@ class Walker:
         counted = used_as_integers(fn.body if isinstance(fn.body, list) else [ast.Expr(fn.body)])
         counted |= docstring_int_names(ast.get_docstring(fn) if not isinstance(fn, ast.Lambda) else None,
                                        [a.arg for a in [*positional, *args.kwonlyargs]])
+        outer, self.line = self.line, fn.lineno  # parameters hold their values from the definition on
         for a in [*positional, *args.kwonlyargs]:
             is_int = int_annotation(a.annotation) or int_default(defaults.get(a.arg)) or a.arg in counted \
                 or integer_array_annotation(a.annotation)  # `npt.NDArray[np.int64]`: exact integers
@@ -150,6 +158,7 @@ class Walker:
         for a in (args.vararg, args.kwarg):
             if a is not None:
                 params[a.arg] = self.input(a.arg)
+        self.line = outer
         if isinstance(fn, ast.Lambda):
             body: list[ast.stmt] = [ast.Return(fn.body, lineno=fn.body.lineno, col_offset=fn.body.col_offset,
                                                end_lineno=fn.body.end_lineno, end_col_offset=fn.body.end_col_offset)]
@@ -179,6 +188,13 @@ class Walker:
                     env[target] = self.input(target)
 
     def _statement(self, scope: str, stmt: ast.stmt, env: dict[str, Node | None], ctx: Context) -> None:
+        outer, self.line = self.line, stmt.lineno
+        try:
+            self._read_statement(scope, stmt, env, ctx)
+        finally:
+            self.line = outer
+
+    def _read_statement(self, scope: str, stmt: ast.stmt, env: dict[str, Node | None], ctx: Context) -> None:
         conv = Converter(self, env, ctx, scope, stmt)
         if isinstance(stmt, FUNCS):
             for d in stmt.decorator_list:
@@ -373,11 +389,13 @@ class Walker:
             return
         ranges, filters = site_ranges(nodes, conv.ctx)
         bindings = {id(n): self._bindings[id(n)] for n in nodes if id(n) in self._bindings}
+        held_after = {id(n): self._held_after[id(n)] for n in nodes if id(n) in self._held_after}
         inlined = {id(n): self.inlined[id(n)] for n in nodes if id(n) in self.inlined} if self.inlined else {}
         self.sites.append(Site(root=root, scope=conv.scope, span=root.span, statement_line=conv.stmt.lineno,
                                ranges=ranges, filters=filters, float_format=root.format,
                                bindings=tuple(sorted(set(bindings.values()), key=lambda b: b.line)),
-                               bindings_by_node=bindings, inlined=inlined, arrays=array_inputs(nodes, conv.ctx)))
+                               bindings_by_node=bindings, inlined=inlined, arrays=array_inputs(nodes, conv.ctx),
+                               held_after=held_after))
 
 
 def _wider(a: Node | None, b: Node | None) -> Node | None:

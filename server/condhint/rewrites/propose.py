@@ -24,6 +24,7 @@ from condhint.rewrites.array_rules import array_fixes
 from condhint.rewrites.context import Context
 from condhint.rewrites.recheck import FIXABLE, rechecked
 from condhint.rewrites.rules import RULES
+from condhint.rewrites.scalar_view import scalar_view
 from condhint.rewrites.wider import WIDER
 from condhint.rewrites.verify import NOISE, Bench, Evidence
 from condhint.rewrites.writer import Writer
@@ -164,11 +165,20 @@ def fixes_for(subject: Subject, cfg: Config, seconds: float = SECONDS_PER_FINDIN
         return []
     if analysis is not None and analysis.category == "domain-range":
         return []  # the declared range itself leaves the domain: no rewrite changes that
-    if has_reductions(topological(site.root)):
-        return array_fixes(subject, cfg)  # array code: its own rules (the scalar search does not apply)
-    deadline = Deadline(seconds)
     nodes = topological(site.root)
     culprit = nodes[analysis.culprit] if analysis is not None and analysis.culprit is not None else None
+    if has_reductions(nodes):
+        fixes = array_fixes(subject, cfg)  # array code: its own rules first
+        view = None if fixes else scalar_view(site, cfg)
+        if view is None:
+            return fixes
+        # then the scalar rules and the search, on the elementwise formulas of the reductions' results
+        site, mapped = view
+        nodes = topological(site.root)
+        inside = {id(n) for n in nodes}
+        culprit = mapped.get(id(culprit)) if culprit is not None else None
+        culprit = culprit if culprit is not None and id(culprit) in inside else None  # not within a reduction
+    deadline = Deadline(seconds)
     source = subject.index.source
 
     def replaceable(n: Node) -> bool:
@@ -210,6 +220,8 @@ def fixes_for(subject: Subject, cfg: Config, seconds: float = SECONDS_PER_FINDIN
             if (id(p.target), text) in seen or text == p.target.text:
                 continue
             seen.add((id(p.target), text))
+            if writer(p.target).evaluates_both_branches and not bench.branches_finite(replacement):
+                continue  # `np.where` would compute a branch that overflows or divides by zero
             cand_root = dag.substitute(site.root, p.target, replacement)
             try:
                 ev = bench.judge(p.target, replacement, cand_root, p.approximate, deadline)

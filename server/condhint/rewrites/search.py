@@ -31,7 +31,7 @@ from condhint.rewrites.context import Context
 
 TRANSFORMS = ("together", "cancel", "factor", "radsimp", "trigsimp")  # sympy functions, in the order tried
 SYMPY_TITLE = "Rewrite as `{text}` (sympy {name})"  # {text}: the replacement, filled in once it is written
-MAX_TERMS = 8
+MAX_TERMS = 12
 SERIES_VAR = "__series_arg"
 
 
@@ -123,8 +123,8 @@ def _nice_below(x: float) -> float:
     """A round number ≤ x (one significant digit)."""
     if x <= 0 or not math.isfinite(x):
         return x
-    p = 10.0 ** math.floor(math.log10(x))
-    return math.floor(x / p) * p
+    e = math.floor(math.log10(x))
+    return float(f"{math.floor(x / 10.0 ** e)}e{e}")  # 0.3, not 3 * 0.1 = 0.30000000000000004
 
 
 def series(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Found]:
@@ -172,29 +172,34 @@ def series(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Found]:
         # switch: the largest |u| below which every grid point is within the truncation bound
         bad = np.abs(grid)[~ok]
         switch = float(bad.min()) if len(bad) else math.inf
-        if switch <= lo:
+        # the switch as it will be written: a round number checked in mpmath (the grid is coarse)
+        cut = switch if switch > hi else _checked_cut(local, terms, switch, signs, ctx.bench.u / 4, deadline)
+        if cut is None or cut <= lo:
             continue
         poly = series_node(terms, x)
         with np.errstate(all="ignore"):
             p64 = forward(topological(poly), {SERIES_VAR: grid}, F64_BACKEND, len(grid))[id(poly)]
         plost = _lost(p64, exact, ctx.bench.format)
-        use = np.abs(grid) < switch
-        worst = float(max(np.max(plost[use], initial=0.0), np.max(orig[~use], initial=0.0)))
+        use = np.abs(grid) < cut
+        # what the original still loses beyond the switch: at the grid points there, and at the switch itself
+        try:
+            beyond = max(np.max(orig[~use], initial=0.0),
+                         _original_loss(local, cut, signs, ctx, deadline) if cut <= hi else 0.0)
+        except BudgetExceeded:
+            break
+        worst = float(max(np.max(plost[use], initial=0.0), beyond))
         if best is None or worst < best[0] - 0.25:
-            best, chosen = (worst, count, switch), terms
+            best, chosen = (worst, count, cut), terms
         if not len(bad):
             break
     if best is None or chosen is None:
         return
-    worst, count, switch = best
+    worst, count, cut = best
     poly = series_node(chosen, u)
-    if switch > hi:
+    if cut > hi:
         name = _short(u)
         yield Found("series", f"Use the Taylor series ({count} terms) on this small-argument range", poly, True,
                     f"Taylor series: accurate for |{name}| <= {num(hi, 2)} (checked); not beyond")
-        return
-    cut = _checked_cut(local, chosen, switch, signs, ctx.bench.u / 4, deadline)
-    if cut is None or cut <= lo:
         return
     cond = dag.compare(dag.call("abs", u), "<", dag.const(cut))
     yield Found("series", f"Use the Taylor series ({count} terms) where |{_short(u)}| < {cut:g}",
@@ -230,6 +235,14 @@ def _checked_cut(local: Node, terms: list[tuple[Fraction, int]], switch: float, 
             return cut
         cut = _nice_below(cut * 0.999)  # the next round number down: 0.1 → 0.09
     return None
+
+
+def _original_loss(local: Node, at: float, signs: list[float], ctx: Context, deadline: Deadline) -> float:
+    """The worst digits the original formula loses at ±`at` (just past the switch, where it takes over)."""
+    pts = np.array([s * at for s in signs])
+    with np.errstate(all="ignore"):
+        v64 = forward(topological(local), {SERIES_VAR: pts}, F64_BACKEND, len(pts))[id(local)]
+    return float(np.max(_lost(v64, _exact(local, pts, deadline), ctx.bench.format)))
 
 
 def _truncation(terms: list[tuple[Fraction, int]], grid: np.ndarray, exact: list[Any]) -> np.ndarray:

@@ -23,7 +23,7 @@ import numpy as np
 
 from condhint.budget import OverBudget, run_with_budget
 from condhint.config import Config
-from condhint.expr import INPUT, Node, topological
+from condhint.expr import INPUT, SELECT, Node, topological
 from condhint.numeric.analysis import digits_of, metrics, rounds
 from condhint.numeric.inputs import defined_ranges, keep_where_guards_hold
 from condhint.numeric.backends import F64_BACKEND
@@ -101,6 +101,18 @@ class Bench:
             v = v[~np.isnan(v)]
             self._signs[key] = 0 if not len(v) else (1 if np.all(v > 0) else -1 if np.all(v < 0) else 0)
         return self._signs[key]
+
+    def branches_finite(self, candidate: Node) -> bool:
+        """Whether both branches of every choice the candidate adds are finite wherever the original is: numpy's
+        `where` evaluates both, so a branch that is not taken must not overflow or divide by zero either (on
+        Python floats it would raise; on arrays it would warn). The code's own choices stay as they are."""
+        finite = np.isfinite(self.orig64)
+        own = {id(n) for n in topological(self.site.root)}
+        for n in topological(candidate):
+            if n.kind == SELECT and id(n) not in own and any(
+                    np.any(finite & ~np.isfinite(self.values(b))) for b in n.args[1:]):
+                return False
+        return True
 
     def nonneg(self, node: Node) -> bool:
         v = self.values(node)

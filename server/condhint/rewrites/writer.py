@@ -28,7 +28,7 @@ class Writer:
         self.style = _style(index.tree)
         self.site_nodes = topological(site.root)
         self.names = visible_names(index, constants, site, target)
-        self.rebound = rebound_names(index, target)
+        self.rebound = rebound_names(index, site, target)
 
     def reuse(self, node: Node) -> str | None:
         if node.kind == INPUT or node.span is None or not node.text or node is self.target:
@@ -36,6 +36,11 @@ class Writer:
         if not self.target.span.contains(node.span) or self.source.segment(node.span) != node.text:  # type: ignore[union-attr]
             return None
         return node.text if codegen.is_expression(node.text) else None
+
+    @property
+    def evaluates_both_branches(self) -> bool:
+        """A choice is written here as numpy's `where`, which computes both branches (else `a if c else b`)."""
+        return codegen.Spelling.for_site(self.style, self.site_nodes).array_style
 
     def write(self, replacement: Node) -> tuple[str, list[str], Span]:
         """The replacement text, the imports it needs, and the span it replaces (the target's, widened over
@@ -92,15 +97,25 @@ def visible_names(index: "ModuleIndex", constants: dict[str, Node], site: Site, 
     return out
 
 
-def rebound_names(index: "ModuleIndex", target: Node) -> set[str]:
-    """Names (and `name.attr`, and names whose items are assigned) given a new value between the start of the
-    definition holding `target` and `target`'s line: there an input spelled with that name is not what the name
-    holds any more (`factor += 1` before `factor ** n - 1`), so a fix must not write it."""
+def rebound_names(index: "ModuleIndex", site: Site, target: Node) -> set[str]:
+    """Texts of the site's inputs (and `name[` for their items) given a new value between the line after which
+    the input holds it (`Site.held_after`: where it was bound or first read, else the start of the definition
+    holding `target`) and `target`'s line: there the text no longer spells the input's value (`factor += 1`
+    before `factor ** n - 1`), so a fix must not write it. `nm = norm[mask]` itself does not rebind `nm`."""
     assert target.span is not None
     line = target.span.line
     start = max((d.lineno for d in _functions(index.tree) if d.lineno <= line <= (d.end_lineno or d.lineno)),
                 default=index.unit_at(line).start)  # the innermost function holding the target, its own names
-    return {name for name, lines in _stores(index.tree).items() if any(start <= ln < line for ln in lines)}
+    stores = _stores(index.tree)
+    out: set[str] = set()
+    for n in topological(site.root):
+        if n.kind != INPUT or not n.text:
+            continue
+        since = max(site.held_after.get(id(n), 0), start - 1)
+        for key in (n.text, n.text.split("[")[0] + "["):
+            if any(since < ln < line for ln in stores.get(key, ())):
+                out.add(key)
+    return out
 
 
 
