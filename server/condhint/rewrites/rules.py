@@ -7,7 +7,6 @@ sympy's own optimisation on the target; the others work on our DAG directly.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
 from fractions import Fraction
 from typing import Any, Callable
 
@@ -16,26 +15,7 @@ from sympy.codegen import rewriting as sr
 from condhint.expr import CONST, Node
 from condhint.rewrites import dag, sym
 from condhint.rewrites.context import Context
-
-Match = dict[str, Any]
-
-
-@dataclass(frozen=True)
-class Rule:
-    id: str
-    title: str  # the quick-fix menu text
-    domain: str  # preconditions, in words
-    source: str  # where the identity comes from
-    match: Callable[[Node], Match | None]
-    build: Callable[[Match, Context], list[Node]]
-    requires: Callable[[Match, Context], bool] = lambda m, ctx: True
-    cost: int = 1  # among equally accurate fixes the cheaper one is offered first
-
-    def candidates(self, node: Node, ctx: Context) -> list[Node]:
-        m = self.match(node)
-        if m is None or not self.requires(m, ctx):
-            return []
-        return [c for c in self.build(m, ctx) if c is not None]
+from condhint.rewrites.rule import Match, Rule
 
 
 # ---- matchers ---------------------------------------------------------------------------------------------------
