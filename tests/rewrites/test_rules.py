@@ -2,6 +2,7 @@
 accuracy before and after on the rule's regime, measured here with mpmath (60 digits) on our own points."""
 from __future__ import annotations
 
+import functools
 import inspect
 import math
 from dataclasses import dataclass
@@ -33,6 +34,15 @@ class Case:
 
 def _log(v: float) -> float:
     return math.log(v) if v > 0 else -math.inf
+
+
+def _f64(formula: Callable[..., object]) -> Callable[..., float]:
+    """A formula in numpy's binary64 scalars: an overflow gives inf (Python's floats raise instead)."""
+    @functools.wraps(formula)  # its signature names the inputs
+    def run(*args: float) -> float:
+        with np.errstate(all="ignore"):
+            return float(formula(*(np.float64(a) for a in args)))  # type: ignore[arg-type]
+    return run
 
 
 def geo(lo: float, hi: float, n: int = 25) -> list[tuple[float]]:
@@ -164,6 +174,93 @@ CASES = [
          else -0.5 * (b + math.copysign(math.sqrt(b * b + 4), b)),
          lambda b: (-b + mpmath.sqrt(b * b + 4)) / 2, [(-v,) for (v,) in geo(1e-3, 1e8)] + geo(1e-3, 1e8),
          "Forsythe 1966; Goldberg 1991 (sign-aware root selection)"),
+    Case("softplus", "import math\ndef f(x):  # condhint: 1 <= x <= 1000\n    return math.log(1 + math.exp(x))\n",
+         "max(x, 0) + math.log1p(math.exp(-abs(x)))", [], _f64(lambda x: np.log(1 + np.exp(x))),
+         lambda x: max(x, 0) + math.log1p(math.exp(-abs(x))), lambda x: mpmath.log(1 + mpmath.exp(x)),
+         geo(1, 1000), "common practice (softplus)"),
+    Case("softplus", "import numpy as np\ndef f(x):  # condhint: 30 <= x <= 1000\n    return np.log(np.exp(x) + 1)\n",
+         "np.logaddexp(0, x)", [], _f64(lambda x: np.log(np.exp(x) + 1)), lambda x: float(np.logaddexp(0, x)),
+         lambda x: mpmath.log(mpmath.exp(x) + 1), geo(30, 1000), "common practice (softplus; numpy logaddexp)"),
+    Case("exp-product", "import math\n"
+         "def f(a, b):  # condhint: 700 <= a <= 800, 1e-300 <= b <= 1e-200\n    return math.exp(a) * b\n",
+         "math.exp(a / 2) * b * math.exp(a / 2)", [], _f64(lambda a, b: np.exp(a) * b),
+         lambda a, b: math.exp(a / 2) * b * math.exp(a / 2), lambda a, b: mpmath.exp(a) * b,
+         grid(np.linspace(700, 800, 6), np.geomspace(1e-300, 1e-200, 6)), "common practice"),
+    Case("exp-product", "import math\n"
+         "def f(x, t):  # condhint: 100 <= x <= 170, 100 <= t <= 200\n    return t ** (x + 0.5) * math.exp(-t)\n",
+         "(t ** ((x + 0.5) / 2) * math.exp(-t / 2)) ** 2", [], _f64(lambda x, t: t ** (x + 0.5) * np.exp(-t)),
+         lambda x, t: (t ** ((x + 0.5) / 2) * math.exp(-t / 2)) ** 2, lambda x, t: t ** (x + 0.5) * mpmath.exp(-t),
+         grid(np.linspace(100, 170, 8), np.linspace(100, 200, 6)),
+         "common practice (Cephes' Stirling formula for the gamma function)"),
+    Case("hypot-many", "import math\n"
+         "def f(x, y, z):  # condhint: 1e-200 <= x <= 1e200, 1e-200 <= y <= 1e200, 1e-200 <= z <= 1e200\n"
+         "    return math.sqrt(x*x + y*y + z*z)\n",
+         "math.hypot(x, y, z)", [], _f64(lambda x, y, z: np.sqrt(x * x + y * y + z * z)), math.hypot,
+         lambda x, y, z: mpmath.sqrt(x * x + y * y + z * z),
+         grid(*[np.geomspace(1e-200, 1e200, 5)] * 3), "ISO C99 hypot; Python's math.hypot"),
+    Case("log-of-product", "import math\n"
+         "def f(a, b):  # condhint: 1e200 <= a <= 1e300, 1e200 <= b <= 1e300\n    return math.log(a * b)\n",
+         "math.log(a) + math.log(b)", [], _f64(lambda a, b: np.log(a * b)), lambda a, b: math.log(a) + math.log(b),
+         lambda a, b: mpmath.log(a * b), grid(np.geomspace(1e200, 1e300, 6), np.geomspace(1e200, 1e300, 6)),
+         "NIST DLMF 4.8.2"),
+    Case("log-of-product", "import math\n"
+         "def f(a, b):  # condhint: 1e200 <= a <= 1e300, 1e-300 <= b <= 1e-200\n    return math.log(a / b)\n",
+         "math.log(a) - math.log(b)", [], _f64(lambda a, b: np.log(a / b)), lambda a, b: math.log(a) - math.log(b),
+         lambda a, b: mpmath.log(a / b), grid(np.geomspace(1e200, 1e300, 6), np.geomspace(1e-300, 1e-200, 6)),
+         "NIST DLMF 4.8.3"),
+    Case("log-one-minus-power", "import numpy as np\n"
+         "def f(x, c, d):  # condhint: 1e-6 <= x <= 1e-3, 1 <= c <= 5, 1 <= d <= 100\n"
+         "    return np.log1p(-(1 + x**c)**(-d))\n",
+         "np.log(-np.expm1(-d * np.log1p(x**c)))", [], _f64(lambda x, c, d: np.log1p(-(1 + x ** c) ** (-d))),
+         lambda x, c, d: math.log(-math.expm1(-d * math.log1p(x ** c))),
+         lambda x, c, d: mpmath.log1p(-(1 + x ** c) ** (-d)),
+         grid(np.geomspace(1e-6, 1e-3, 5), np.linspace(1, 5, 5), np.geomspace(1, 100, 4)),
+         "Mächler 2012 (log1mexp); Higham 2002"),
+    Case("vector-angle", "import math\n"
+         "def f(ax, ay, bx, by):  # condhint: 1 <= ax <= 2, 1e-9 <= ay <= 1e-8, 1 <= bx <= 2, -1e-8 <= by <= -1e-9\n"
+         "    return math.acos((ax*bx + ay*by) / (math.hypot(ax, ay) * math.hypot(bx, by)))\n",
+         "math.atan2(abs(ax * by - ay * bx), ax*bx + ay*by)", [],
+         _f64(lambda ax, ay, bx, by: np.arccos((ax * bx + ay * by) / (np.hypot(ax, ay) * np.hypot(bx, by)))),
+         lambda ax, ay, bx, by: math.atan2(abs(ax * by - ay * bx), ax * bx + ay * by),
+         lambda ax, ay, bx, by: mpmath.acos((ax * bx + ay * by) / (mpmath.hypot(ax, ay) * mpmath.hypot(bx, by))),
+         grid(np.array([1.0, 1.7]), np.geomspace(1e-9, 1e-8, 3), np.array([1.2, 2.0]), -np.geomspace(1e-9, 1e-8, 3)),
+         "Kahan 2006 (\"Mindless\", §12); common practice"),
+    Case("vector-angle", "import math\n"
+         "def f(ax, ay, az, bx, by, bz):  # condhint: 1 <= ax <= 2, 1e-9 <= ay <= 1e-8, 1e-9 <= az <= 1e-8, "
+         "1 <= bx <= 2, -1e-8 <= by <= -1e-9, -1e-8 <= bz <= -1e-9\n"
+         "    return math.acos((ax*bx + ay*by + az*bz) / (math.sqrt(ax*ax + ay*ay + az*az) "
+         "* math.sqrt(bx*bx + by*by + bz*bz)))\n",
+         "math.atan2(math.hypot(ay * bz - az * by, az * bx - ax * bz, ax * by - ay * bx), ax*bx + ay*by + az*bz)", [],
+         lambda ax, ay, az, bx, by, bz: math.acos((ax * bx + ay * by + az * bz) / (
+             math.sqrt(ax * ax + ay * ay + az * az) * math.sqrt(bx * bx + by * by + bz * bz))),
+         lambda ax, ay, az, bx, by, bz: math.atan2(
+             math.hypot(ay * bz - az * by, az * bx - ax * bz, ax * by - ay * bx), ax * bx + ay * by + az * bz),
+         lambda ax, ay, az, bx, by, bz: mpmath.acos((ax * bx + ay * by + az * bz) / (
+             mpmath.sqrt(ax * ax + ay * ay + az * az) * mpmath.sqrt(bx * bx + by * by + bz * bz))),
+         [(1.0 + k / 7, 1e-9 * (1 + k), 3e-9 + k * 5e-10, 2.0 - k / 9, -2e-9 * (1 + k % 4), -1e-8 + k * 3e-10)
+          for k in range(16)], "Kahan 2006 (\"Mindless\", §12); common practice"),
+    Case("acos-one-minus", "import math\ndef f(y):  # condhint: 1e-12 <= y <= 1e-3\n    return math.acos(1 - y)\n",
+         "2 * math.asin(math.sqrt(y / 2))", [], lambda y: math.acos(1 - y), lambda y: 2 * math.asin(math.sqrt(y / 2)),
+         lambda y: mpmath.acos(1 - y), geo(1e-12, 1e-3), "NIST DLMF ch. 4 (half-angle formula)"),
+    Case("haversine", "import math\n"
+         "def f(a, b, dl):  # condhint: 0.5 <= a <= 0.5001, 0.5 <= b <= 0.5001, 1e-8 <= dl <= 1e-5\n"
+         "    return math.acos(math.sin(a)*math.sin(b) + math.cos(a)*math.cos(b)*math.cos(dl))\n",
+         "2 * math.asin(math.sqrt(math.sin((b - a) / 2) ** 2 + math.cos(a) * math.cos(b) * math.sin(dl / 2) ** 2))", [],
+         lambda a, b, dl: math.acos(math.sin(a) * math.sin(b) + math.cos(a) * math.cos(b) * math.cos(dl)),
+         lambda a, b, dl: 2 * math.asin(math.sqrt(math.sin((b - a) / 2) ** 2
+                                                 + math.cos(a) * math.cos(b) * math.sin(dl / 2) ** 2)),
+         lambda a, b, dl: mpmath.acos(mpmath.sin(a) * mpmath.sin(b) + mpmath.cos(a) * mpmath.cos(b) * mpmath.cos(dl)),
+         grid(np.linspace(0.5, 0.5001, 4), np.linspace(0.5, 0.5001, 3), np.geomspace(1e-8, 1e-5, 4)),
+         "Sinnott 1984 (Virtues of the Haversine)"),
+    Case("law-of-cosines", "import math\n"
+         "def f(a, b, g):  # condhint: 1 <= a <= 2, 1 <= b <= 2, 1e-8 <= g <= 1e-4\n"
+         "    return math.sqrt(a*a + b*b - 2*a*b*math.cos(g))\n",
+         "(a - b) ** 2 + 4 * a * b * math.sin(g / 2) ** 2", [],
+         lambda a, b, g: math.sqrt(a * a + b * b - 2 * a * b * math.cos(g)),
+         lambda a, b, g: math.sqrt((a - b) ** 2 + 4 * a * b * math.sin(g / 2) ** 2),
+         lambda a, b, g: mpmath.sqrt(a * a + b * b - 2 * a * b * mpmath.cos(g)),
+         [(1.0 + k / 20, 1.0 + k / 20 + 1e-9 * k, 1e-8 * 1.5 ** k) for k in range(20)],
+         "NIST DLMF ch. 4 (half-angle formula)"),
 ]
 
 
@@ -242,6 +339,37 @@ MUST_NOT_FIRE = [
     ("log2", "import math\ndef f(x):  # condhint: 1e-3 <= x <= 1e3\n    return math.log(x) / math.log(2)\n",
      "math.log(x) / math.log(2)", "measured"),
     ("exp2", "import math\ndef f(x):  # condhint: -10 <= x <= 10\n    return 2 ** x\n", "2 ** x", "measured"),
+    ("softplus", "import math\ndef f(x):  # condhint: 0 <= x <= 5\n    return math.log(1 + math.exp(x))\n",
+     "math.log(1 + math.exp(x))", "measured"),
+    ("exp-product", "import math\ndef f(a, b):  # condhint: 1 <= a <= 5, 1 <= b <= 2\n    return math.exp(a) * b\n",
+     "math.exp(a) * b", "measured"),
+    ("exp-product", "import math\ndef f(a):  # condhint: 700 <= a <= 800\n    return math.exp(a) * 1e-300\n",
+     "math.exp(a) * 1e-300", "precondition"),  # one factor besides literals: nothing to balance it with
+    ("hypot-many", "import math\ndef f(x, y, z):  # condhint: 1 <= x <= 10, 1 <= y <= 10, 1 <= z <= 10\n"
+     "    return math.sqrt(x*x + y*y + z*z)\n", "math.sqrt(x*x + y*y + z*z)", "measured"),
+    ("log-of-product", "import math\ndef f(a, b):  # condhint: 1 <= a <= 10, 1 <= b <= 10\n    return math.log(a * b)\n",
+     "math.log(a * b)", "measured"),
+    ("log-of-product", "import math\ndef f(a, b):  # condhint: -2 <= a <= 2, 1 <= b <= 2\n    return math.log(a * b)\n",
+     "math.log(a * b)", "precondition"),
+    ("log-one-minus-power", "import math\ndef f(x):  # condhint: 2 <= x <= 3\n    return math.log1p(-(1 - x) ** 2)\n",
+     "math.log1p(-(1 - x) ** 2)", "precondition"),
+    ("log-one-minus-power", "import math\ndef f(x, d):  # condhint: 1 <= x <= 2, 1 <= d <= 2\n"
+     "    return math.log1p(-(1 + x) ** (-d))\n", "math.log1p(-(1 + x) ** (-d))", "measured"),
+    ("vector-angle", "import math\ndef f(ax, ay, bx, by):  # condhint: 1 <= ax <= 2, 1 <= ay <= 2, -2 <= bx <= -1, 1 <= by <= 2\n"
+     "    return math.acos((ax*bx + ay*by) / (math.hypot(ax, ay) * math.hypot(bx, by)))\n",
+     "math.acos((ax*bx + ay*by) / (math.hypot(ax, ay) * math.hypot(bx, by)))", "measured"),
+    ("vector-angle", "import math\ndef f(ax, ay, bx, by):  # condhint: 1 <= ax <= 2, 1 <= ay <= 2, 1 <= bx <= 2, 1 <= by <= 2\n"
+     "    return math.acos((ax*bx + ay*bx) / (math.hypot(ax, ay) * math.hypot(bx, by)))\n",
+     "math.acos((ax*bx + ay*bx) / (math.hypot(ax, ay) * math.hypot(bx, by)))", "precondition"),  # not a dot product
+    ("acos-one-minus", "import math\ndef f(y):  # condhint: 0.5 <= y <= 1.5\n    return math.acos(1 - y)\n",
+     "math.acos(1 - y)", "measured"),
+    ("acos-one-minus", "import math\ndef f(y):  # condhint: -1 <= y <= 1\n    return math.acos(1 - y)\n",
+     "math.acos(1 - y)", "precondition"),
+    ("haversine", "import math\ndef f(a, b, dl):  # condhint: 0 <= a <= 1, 0 <= b <= 1, 1 <= dl <= 2\n"
+     "    return math.acos(math.sin(a)*math.sin(b) + math.cos(a)*math.cos(b)*math.cos(dl))\n",
+     "math.acos(math.sin(a)*math.sin(b) + math.cos(a)*math.cos(b)*math.cos(dl))", "measured"),
+    ("law-of-cosines", "import math\ndef f(a, b, g):  # condhint: 1 <= a <= 2, 1 <= b <= 2, 1 <= g <= 2\n"
+     "    return math.sqrt(a*a + b*b - 2*a*b*math.cos(g))\n", "a*a + b*b - 2*a*b*math.cos(g)", "measured"),
 ]
 
 

@@ -14,7 +14,9 @@ from sympy.codegen import rewriting as sr
 
 from condhint.expr import CONST, Node
 from condhint.rewrites import dag, sym
+from condhint.rewrites.angle_rules import ANGLE_RULES
 from condhint.rewrites.context import Context
+from condhint.rewrites.overflow_rules import OVERFLOW_RULES
 from condhint.rewrites.rule import Match, Rule
 
 
@@ -410,7 +412,8 @@ QUADRATIC_ROOT = Rule(
 
 
 RULES: tuple[Rule, ...] = (  # specific identities first, general algebra last
-    QUADRATIC_ROOT, ASINH, LOGADDEXP, HYPOT, COMPOUND_POWER, LOG_DIFFERENCE, EXP_DIFFERENCE, ONE_MINUS_COS,
+    QUADRATIC_ROOT, ASINH, *ANGLE_RULES, LOGADDEXP, HYPOT, *OVERFLOW_RULES,
+    COMPOUND_POWER, LOG_DIFFERENCE, EXP_DIFFERENCE, ONE_MINUS_COS,
     COS_MINUS_ONE, TAN_MINUS_SIN, COS_DIFFERENCE, SIN_DIFFERENCE, EXPM1, LOG1P, SQRT_DIFFERENCE, SQRT_AND_TERM,
     COMBINE_FRACTIONS, QUOTIENT_MINUS_ONE, DIFFERENCE_OF_SQUARES, LOG_SUM_EXP, LOG2, EXP2,
 )
