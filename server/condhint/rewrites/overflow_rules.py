@@ -28,29 +28,12 @@ from condhint.rewrites.context import Context
 from condhint.rewrites.rule import Match, Rule
 
 
-def _accumulate(total: Node | None, sign: int, term: Node) -> Node:
-    """total + sign·term, written as a subtraction where the term is negative (`a - t` rather than `a + -t`)."""
-    if term.kind == "neg":
-        sign, term = -sign, term.args[0]
-    if total is None:
-        return term if sign == 1 else dag.neg(term)
-    return dag.add(total, term) if sign == 1 else dag.sub(total, term)
-
-
 # ---- softplus (common practice; the two-term log-sum-exp with one term e⁰) -------------------------------------------
 def _softplus_match(node: Node) -> Match | None:
-    arg = dag.unary(node, "log1p")
-    if arg is not None:
-        x = dag.unary(arg, "exp")
-        return None if x is None else {"x": x}
-    arg = dag.unary(node, "log")
-    if arg is None or arg.kind != "add":
-        return None
-    for one, e in (arg.args, arg.args[::-1]):
-        x = dag.unary(e, "exp")
-        if x is not None and dag.is_const(one, 1):
-            return {"x": x}
-    return None
+    inner = dag.unary(node, "log")
+    u = dag.unary(node, "log1p") if inner is None else dag.one_plus(inner)  # log1p(u) or log(1 + u)
+    x = dag.unary(u, "exp") if u is not None else None
+    return None if x is None else {"x": x}
 
 
 def _softplus_build(m: Match, ctx: Context) -> list[Node]:
@@ -162,6 +145,15 @@ def _log_term(f: Node, ctx: Context) -> tuple[Node, int] | None:
     return dag.call("log", f if s == 1 else dag.neg(f)), s
 
 
+def _accumulate(total: Node | None, sign: int, term: Node) -> Node:
+    """total + sign·term, written as a subtraction where the term is negative (`a - t` rather than `a + -t`)."""
+    if term.kind == "neg":
+        sign, term = -sign, term.args[0]
+    if total is None:
+        return term if sign == 1 else dag.neg(term)
+    return dag.add(total, term) if sign == 1 else dag.sub(total, term)
+
+
 def _log_product(m: Match, ctx: Context) -> list[Node]:
     total, sign = None, 1
     for f, e in m["factors"]:
@@ -180,17 +172,11 @@ LOG_OF_PRODUCT = Rule("log-of-product", "Write the logarithm of a product as a s
 
 # ---- log(1 − (1 + u)ᵖ) (Mächler 2012, "Accurately computing log(1 − exp(−|a|))") ------------------------------------------
 def _log_one_minus_power_match(node: Node) -> Match | None:
-    arg = dag.unary(node, "log1p")
-    if arg is not None:
-        power = arg.args[0] if arg.kind == "neg" else None
-    else:
-        arg = dag.unary(node, "log")
-        d = dag.difference(arg) if arg is not None else None
-        power = d[1] if d is not None and dag.is_const(d[0], 1) else None
-    if power is None or power.kind != "pow":
-        return None
-    u = dag.one_plus(power.args[0])
-    return None if u is None else {"u": u, "p": power.args[1]}
+    inner = dag.unary(node, "log")
+    u = dag.unary(node, "log1p") if inner is None else dag.one_plus(inner)  # log1p(u) or log(1 + u)
+    power = u.args[0] if u is not None and u.kind == "neg" else None
+    base = dag.one_plus(power.args[0]) if power is not None and power.kind == "pow" else None
+    return None if base is None else {"u": base, "p": power.args[1]}  # type: ignore[union-attr]
 
 
 def _log_one_minus_power(m: Match, ctx: Context) -> list[Node]:
