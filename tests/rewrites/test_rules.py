@@ -240,15 +240,18 @@ CASES = [
          [(1.0 + k / 7, 1e-9 * (1 + k), 3e-9 + k * 5e-10, 2.0 - k / 9, -2e-9 * (1 + k % 4), -1e-8 + k * 3e-10)
           for k in range(16)], "Kahan 2006 (\"Mindless\", §12); common practice"),
     Case("acos-one-minus", "import math\ndef f(y):  # condhint: 1e-12 <= y <= 1e-3\n    return math.acos(1 - y)\n",
-         "2 * math.asin(math.sqrt(y / 2))", [], lambda y: math.acos(1 - y), lambda y: 2 * math.asin(math.sqrt(y / 2)),
-         lambda y: mpmath.acos(1 - y), geo(1e-12, 1e-3), "NIST DLMF ch. 4 (half-angle formula)"),
+         "2 * math.atan2(math.sqrt(y / 2), math.sqrt(1 - y / 2))", [], lambda y: math.acos(1 - y),
+         lambda y: 2 * math.atan2(math.sqrt(y / 2), math.sqrt(1 - y / 2)),
+         lambda y: mpmath.acos(1 - y), geo(1e-12, 1e-3), "NIST DLMF ch. 4 (half-angle formulas)"),
     Case("haversine", "import math\n"
          "def f(a, b, dl):  # condhint: 0.5 <= a <= 0.5001, 0.5 <= b <= 0.5001, 1e-8 <= dl <= 1e-5\n"
          "    return math.acos(math.sin(a)*math.sin(b) + math.cos(a)*math.cos(b)*math.cos(dl))\n",
-         "2 * math.asin(math.sqrt(math.sin((b - a) / 2) ** 2 + math.cos(a) * math.cos(b) * math.sin(dl / 2) ** 2))", [],
+         "2 * math.atan2(math.sqrt(math.sin((b - a) / 2) ** 2 + math.cos(a) * math.cos(b) * math.sin(dl / 2) ** 2), "
+         "math.sqrt(math.sin((a + b) / 2) ** 2 + math.cos(a) * math.cos(b) * math.cos(dl / 2) ** 2))", [],
          lambda a, b, dl: math.acos(math.sin(a) * math.sin(b) + math.cos(a) * math.cos(b) * math.cos(dl)),
-         lambda a, b, dl: 2 * math.asin(math.sqrt(math.sin((b - a) / 2) ** 2
-                                                 + math.cos(a) * math.cos(b) * math.sin(dl / 2) ** 2)),
+         lambda a, b, dl: 2 * math.atan2(
+             math.sqrt(math.sin((b - a) / 2) ** 2 + math.cos(a) * math.cos(b) * math.sin(dl / 2) ** 2),
+             math.sqrt(math.sin((a + b) / 2) ** 2 + math.cos(a) * math.cos(b) * math.cos(dl / 2) ** 2)),
          lambda a, b, dl: mpmath.acos(mpmath.sin(a) * mpmath.sin(b) + mpmath.cos(a) * mpmath.cos(b) * mpmath.cos(dl)),
          grid(np.linspace(0.5, 0.5001, 4), np.linspace(0.5, 0.5001, 3), np.geomspace(1e-8, 1e-5, 4)),
          "Sinnott 1984 (Virtues of the Haversine)"),

@@ -3,7 +3,7 @@ to the rounding of a cosine near 1:
 
 - `vector-angle`: acos(a·b / (|a|·|b|)) over 2-D or 3-D scalar components -> atan2(|a × b|, a·b), the cross
   product spelled from the same components;
-- `acos-one-minus`: acos(1 − y) -> 2·asin(√(y/2)) for y ≥ 0 (half-angle formula);
+- `acos-one-minus`: acos(1 − y) -> 2·atan2(√(y/2), √(1 − y/2)) for y ≥ 0 (half-angle formulas);
 - `haversine`: acos(sin a·sin b + cos a·cos b·cos Δ) -> 2·asin(√(sin²((a − b)/2) + cos a·cos b·sin²(Δ/2))), and
   the same with sin and cos exchanged (polar angles);
 - `law-of-cosines`: a² + b² − 2ab·cos γ -> (a − b)² + 4ab·sin²(γ/2).
@@ -24,10 +24,6 @@ def _half(x: Node) -> Node:
 
 def _sin_half_squared(x: Node) -> Node:
     return dag.power(dag.call("sin", _half(x)), 2)
-
-
-def _twice_asin_sqrt(h: Node) -> Node:
-    return dag.mul(dag.const(2), dag.call("asin", dag.call("sqrt", h)))
 
 
 # ---- the angle between two vectors (Kahan 2006, §12; common practice) ---------------------------------------------------
@@ -113,9 +109,18 @@ def _acos_one_minus_match(node: Node) -> Match | None:
     return {"y": d[1]} if d is not None and dag.is_const(d[0], 1) else None
 
 
+def _acos_one_minus(m: Match, ctx: Context) -> list[Node]:
+    """θ = acos(1 − y) has sin(θ/2) = √(y/2) and cos(θ/2) = √(1 − y/2), both ≥ 0 for 0 ≤ y ≤ 2. atan2 of the two
+    is accurate on all of it: 2·asin(√(y/2)) alone loses up to half the digits near y = 2, where the rounding
+    of √(y/2) ≈ 1 is magnified as much as in acos near −1."""
+    half = _half(m["y"])
+    return [dag.mul(dag.const(2), dag.call("atan2", dag.call("sqrt", half),
+                                           dag.call("sqrt", dag.sub(dag.const(1), half))))]
+
+
 ACOS_ONE_MINUS = Rule(
-    "acos-one-minus", "Write acos(1 − y) as 2·asin(sqrt(y/2))", "0 ≤ y ≤ 2", "NIST DLMF ch. 4 (half-angle formula)",
-    _acos_one_minus_match, lambda m, ctx: [_twice_asin_sqrt(_half(m["y"]))],
+    "acos-one-minus", "Write acos(1 − y) as 2·atan2(sqrt(y/2), sqrt(1 − y/2))", "0 ≤ y ≤ 2",
+    "NIST DLMF ch. 4 (half-angle formulas)", _acos_one_minus_match, _acos_one_minus,
     requires=lambda m, ctx: ctx.nonneg(m["y"]))
 
 _OTHER = {"sin": "cos", "cos": "sin"}
@@ -133,19 +138,24 @@ def _haversine_match(node: Node) -> Match | None:
         ga = _take(triple, lambda f: f.kind == g and dag.same(f.args[0], a))
         gb = _take(triple, lambda f: f.kind == g and dag.same(f.args[0], b))
         if ga is not None and gb is not None and triple[0].kind == "cos":
-            return {"a": a, "b": b, "ga": ga, "gb": gb, "dl": triple[0].args[0]}
+            return {"f": pair[0].kind, "a": a, "b": b, "ga": ga, "gb": gb, "dl": triple[0].args[0]}
     return None
 
 
 def _haversine(m: Match, ctx: Context) -> list[Node]:
-    h = dag.add(_sin_half_squared(dag.sub(m["b"], m["a"])),
-                dag.mul(dag.mul(m["ga"], m["gb"]), _sin_half_squared(m["dl"])))
-    return [_twice_asin_sqrt(h)]
+    """cos c = f(a)f(b) + g(a)g(b)·cos Δ, {f, g} = {sin, cos}: sin²(c/2) = h = sin²((b − a)/2) + g(a)g(b)·sin²(Δ/2)
+    and, from the antipode of the second point, cos²(c/2) = k = f((a + b)/2)² + g(a)g(b)·cos²(Δ/2); h + k = 1.
+    c = 2·atan2(√h, √k) is accurate near the antipodes too, where 2·asin(√h) loses as much as acos."""
+    both = dag.mul(m["ga"], m["gb"])
+    h = dag.add(_sin_half_squared(dag.sub(m["b"], m["a"])), dag.mul(both, _sin_half_squared(m["dl"])))
+    k = dag.add(dag.power(dag.call(m["f"], _half(dag.add(m["a"], m["b"]))), 2),
+                dag.mul(both, dag.power(dag.call("cos", _half(m["dl"])), 2)))
+    return [dag.mul(dag.const(2), dag.call("atan2", dag.call("sqrt", h), dag.call("sqrt", k)))]
 
 
 HAVERSINE = Rule(
-    "haversine", "Use the haversine formula for the spherical law of cosines", "any a, b, Δ",
-    "Sinnott 1984, \"Virtues of the Haversine\" (Sky & Telescope); NIST DLMF ch. 4 (half-angle formula)",
+    "haversine", "Use haversines for the spherical law of cosines", "any a, b, Δ",
+    "Sinnott 1984, \"Virtues of the Haversine\" (Sky & Telescope); NIST DLMF ch. 4 (half-angle formulas)",
     _haversine_match, _haversine)
 
 

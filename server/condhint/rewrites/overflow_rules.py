@@ -11,8 +11,8 @@ part of the formula is not. Each rewrite computes the same function without the 
 - `hypot-many`: √(x² + y² + z² …) -> hypot(x, y, z, …) (nested in numpy, whose hypot takes two arguments);
 - `log-of-product`: log(a·b), log(a/b), log(xᵖ), log(eᵃ·b) -> sums of logarithms, where the samples show every
   factor's sign (an even power takes |x|);
-- `log-one-minus-power`: log(1 − (1 + u)ᵖ), log1p(−(1 + u)ᵖ) -> log(−expm1(p·log1p u)) (and log1p(−e^z) where
-  z = p·log1p u < −log 2), whose power no longer rounds to 1 nor overflows.
+- `log-one-minus-power`: log(1 − (1 + u)ᵖ), log1p(−(1 + u)ᵖ) -> log(−expm1(p·log1p u)), whose power no longer
+  rounds to 1; and that only where z = p·log1p u > −log 2, the original below (Mächler's switch).
 
 They only propose: measurement decides (an overflowing original against a finite candidate that agrees with
 mpmath counts the original's loss as total), so a rewrite that merely moves rounding into an exponent on a
@@ -176,15 +176,16 @@ def _log_one_minus_power_match(node: Node) -> Match | None:
     u = dag.unary(node, "log1p") if inner is None else dag.one_plus(inner)  # log1p(u) or log(1 + u)
     power = u.args[0] if u is not None and u.kind == "neg" else None
     base = dag.one_plus(power.args[0]) if power is not None and power.kind == "pow" else None
-    return None if base is None else {"u": base, "p": power.args[1]}  # type: ignore[union-attr]
+    return None if base is None else {"u": base, "p": power.args[1], "node": node}  # type: ignore[union-attr]
 
 
 def _log_one_minus_power(m: Match, ctx: Context) -> list[Node]:
-    """log(1 − e^z) with z = p·log1p(u): log(−expm1(z)) near z = 0, log1p(−e^z) below z = −log 2."""
+    """log(1 − e^z) with z = p·log1p(u) as log(−expm1(z)); as a second candidate only where z > −log 2, the
+    original elsewhere: there (1 + u)ᵖ < 1/2 does not cancel, and the power, rounded once, is more accurate than
+    e^z, whose argument's rounding is magnified by |z|."""
     z = dag.mul(m["p"], dag.call("log1p", m["u"]))
     near = dag.call("log", dag.neg(dag.call("expm1", z)))
-    far = dag.call("log1p", dag.neg(dag.call("exp", z)))
-    return [near, dag.select(dag.compare(z, ">", dag.const(-math.log(2))), near, far)]
+    return [near, dag.select(dag.compare(z, ">", dag.const(-math.log(2))), near, m["node"])]
 
 
 LOG_ONE_MINUS_POWER = Rule(
