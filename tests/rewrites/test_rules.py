@@ -224,7 +224,7 @@ CASES = [
          lambda ax, ay, bx, by: math.atan2(abs(ax * by - ay * bx), ax * bx + ay * by),
          lambda ax, ay, bx, by: mpmath.acos((ax * bx + ay * by) / (mpmath.hypot(ax, ay) * mpmath.hypot(bx, by))),
          grid(np.array([1.0, 1.7]), np.geomspace(1e-9, 1e-8, 3), np.array([1.2, 2.0]), -np.geomspace(1e-9, 1e-8, 3)),
-         "Kahan 2006 (\"Mindless\", §12); common practice"),
+         "Kahan 2006 (\"Mindless…\"); common practice"),
     Case("vector-angle", "import math\n"
          "def f(ax, ay, az, bx, by, bz):  # condhint: 1 <= ax <= 2, 1e-9 <= ay <= 1e-8, 1e-9 <= az <= 1e-8, "
          "1 <= bx <= 2, -1e-8 <= by <= -1e-9, -1e-8 <= bz <= -1e-9\n"
@@ -238,7 +238,7 @@ CASES = [
          lambda ax, ay, az, bx, by, bz: mpmath.acos((ax * bx + ay * by + az * bz) / (
              mpmath.sqrt(ax * ax + ay * ay + az * az) * mpmath.sqrt(bx * bx + by * by + bz * bz))),
          [(1.0 + k / 7, 1e-9 * (1 + k), 3e-9 + k * 5e-10, 2.0 - k / 9, -2e-9 * (1 + k % 4), -1e-8 + k * 3e-10)
-          for k in range(16)], "Kahan 2006 (\"Mindless\", §12); common practice"),
+          for k in range(16)], "Kahan 2006 (\"Mindless…\"); common practice"),
     Case("acos-one-minus", "import math\ndef f(y):  # condhint: 1e-12 <= y <= 1e-3\n    return math.acos(1 - y)\n",
          "2 * math.atan2(math.sqrt(y / 2), math.sqrt(1 - y / 2))", [], lambda y: math.acos(1 - y),
          lambda y: 2 * math.atan2(math.sqrt(y / 2), math.sqrt(1 - y / 2)),
@@ -350,7 +350,8 @@ MUST_NOT_FIRE = [
      "math.exp(a) * 1e-300", "precondition"),  # one factor besides literals: nothing to balance it with
     ("hypot-many", "import math\ndef f(x, y, z):  # condhint: 1 <= x <= 10, 1 <= y <= 10, 1 <= z <= 10\n"
      "    return math.sqrt(x*x + y*y + z*z)\n", "math.sqrt(x*x + y*y + z*z)", "measured"),
-    ("log-of-product", "import math\ndef f(a, b):  # condhint: 1 <= a <= 10, 1 <= b <= 10\n    return math.log(a * b)\n",
+    ("log-of-product", "import math\n"
+     "def f(a, b):  # condhint: 1 <= a <= 10, 1 <= b <= 10\n    return math.log(a * b)\n",
      "math.log(a * b)", "measured"),
     ("log-of-product", "import math\ndef f(a, b):  # condhint: -2 <= a <= 2, 1 <= b <= 2\n    return math.log(a * b)\n",
      "math.log(a * b)", "precondition"),
@@ -358,10 +359,12 @@ MUST_NOT_FIRE = [
      "math.log1p(-(1 - x) ** 2)", "precondition"),
     ("log-one-minus-power", "import math\ndef f(x, d):  # condhint: 1 <= x <= 2, 1 <= d <= 2\n"
      "    return math.log1p(-(1 + x) ** (-d))\n", "math.log1p(-(1 + x) ** (-d))", "measured"),
-    ("vector-angle", "import math\ndef f(ax, ay, bx, by):  # condhint: 1 <= ax <= 2, 1 <= ay <= 2, -2 <= bx <= -1, 1 <= by <= 2\n"
+    ("vector-angle", "import math\n"
+     "def f(ax, ay, bx, by):  # condhint: 1 <= ax <= 2, 1 <= ay <= 2, -2 <= bx <= -1, 1 <= by <= 2\n"
      "    return math.acos((ax*bx + ay*by) / (math.hypot(ax, ay) * math.hypot(bx, by)))\n",
      "math.acos((ax*bx + ay*by) / (math.hypot(ax, ay) * math.hypot(bx, by)))", "measured"),
-    ("vector-angle", "import math\ndef f(ax, ay, bx, by):  # condhint: 1 <= ax <= 2, 1 <= ay <= 2, 1 <= bx <= 2, 1 <= by <= 2\n"
+    ("vector-angle", "import math\n"
+     "def f(ax, ay, bx, by):  # condhint: 1 <= ax <= 2, 1 <= ay <= 2, 1 <= bx <= 2, 1 <= by <= 2\n"
      "    return math.acos((ax*bx + ay*bx) / (math.hypot(ax, ay) * math.hypot(bx, by)))\n",
      "math.acos((ax*bx + ay*bx) / (math.hypot(ax, ay) * math.hypot(bx, by)))", "precondition"),  # not a dot product
     ("acos-one-minus", "import math\ndef f(y):  # condhint: 0.5 <= y <= 1.5\n    return math.acos(1 - y)\n",

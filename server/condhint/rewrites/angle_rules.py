@@ -4,7 +4,8 @@ to the rounding of a cosine near 1:
 - `vector-angle`: acos(a·b / (|a|·|b|)) over 2-D or 3-D scalar components -> atan2(|a × b|, a·b), the cross
   product spelled from the same components;
 - `acos-one-minus`: acos(1 − y) -> 2·atan2(√(y/2), √(1 − y/2)) for y ≥ 0 (half-angle formulas);
-- `haversine`: acos(sin a·sin b + cos a·cos b·cos Δ) -> 2·asin(√(sin²((a − b)/2) + cos a·cos b·sin²(Δ/2))), and
+- `haversine`: acos(sin a·sin b + cos a·cos b·cos Δ) -> 2·atan2(√h, √k) with the haversine
+  h = sin²((b − a)/2) + cos a·cos b·sin²(Δ/2) and its complement k = sin²((a + b)/2) + cos a·cos b·cos²(Δ/2), and
   the same with sin and cos exchanged (polar angles);
 - `law-of-cosines`: a² + b² − 2ab·cos γ -> (a − b)² + 4ab·sin²(γ/2).
 """
@@ -26,7 +27,7 @@ def _sin_half_squared(x: Node) -> Node:
     return dag.power(dag.call("sin", _half(x)), 2)
 
 
-# ---- the angle between two vectors (Kahan 2006, §12; common practice) ---------------------------------------------------
+# ---- the angle between two vectors (Kahan 2006; common practice) ---------------------------------------------------
 def _components(norm: Node) -> list[Node] | None:
     """[x, y, …] for hypot(x, y, …) (nested as the reader folds it) or sqrt(x² + y² + …)."""
     if norm.kind == "hypot":
@@ -98,11 +99,11 @@ def _vector_angle(m: Match, ctx: Context) -> list[Node]:
 
 VECTOR_ANGLE = Rule(
     "vector-angle", "Compute the angle between vectors as atan2(|a × b|, a · b)", "a, b ≠ 0 (2-D or 3-D components)",
-    "Kahan 2006, \"How Futile are Mindless Assessments of Roundoff…\" §12 (mangled angles); common practice",
+    "Kahan 2006, \"How Futile are Mindless Assessments of Roundoff…\" (angles between vectors); common practice",
     _vector_angle_match, _vector_angle)
 
 
-# ---- half-angle and haversine (NIST DLMF ch. 4; Sinnott 1984) -------------------------------------------------------------
+# ---- half-angle and haversine (NIST DLMF ch. 4; Sinnott 1984) ------------------------------------------------------
 def _acos_one_minus_match(node: Node) -> Match | None:
     arg = dag.unary(node, "acos")
     d = dag.difference(arg) if arg is not None else None

@@ -28,7 +28,7 @@ from condhint.rewrites.context import Context
 from condhint.rewrites.rule import Match, Rule
 
 
-# ---- softplus (common practice; the two-term log-sum-exp with one term e⁰) -------------------------------------------
+# ---- softplus (common practice; the two-term log-sum-exp with one term e⁰) -----------------------------------------
 def _softplus_match(node: Node) -> Match | None:
     inner = dag.unary(node, "log")
     u = dag.unary(node, "log1p") if inner is None else dag.one_plus(inner)  # log1p(u) or log(1 + u)
@@ -46,7 +46,7 @@ SOFTPLUS = Rule("softplus", "Compute log(1 + exp(x)) without overflow", "any x",
                 "common practice (softplus; the two-term log-sum-exp)", _softplus_match, _softplus_build, cost=2)
 
 
-# ---- an exponential split in halves (common practice) ----------------------------------------------------------------------
+# ---- an exponential split in halves (common practice) --------------------------------------------------------------
 def _grows(f: Node) -> bool:
     """An exponential or a power: the factors whose range can leave the format's on its own."""
     return f.kind == "exp" or (f.kind == "pow" and dag.square_of(f) is None)
@@ -96,7 +96,7 @@ EXP_PRODUCT = Rule("exp-product", "Split the exponential in halves around its fa
                    _exp_product_match, lambda m, ctx: [_halved(m, ctx)], cost=2)
 
 
-# ---- hypot of more than two terms (ISO C99 hypot; Python ≥ 3.8 math.hypot takes n arguments) ----------------------------
+# ---- hypot of more than two terms (ISO C99 hypot; Python ≥ 3.8 math.hypot takes n arguments) -----------------------
 def _hypot_many_match(node: Node) -> Match | None:
     arg = dag.unary(node, "sqrt")
     if arg is None or arg.kind != "add":
@@ -119,7 +119,7 @@ HYPOT_MANY = Rule("hypot-many", "Use hypot for sqrt(x² + y² + z²)", "any x, y
                   "ISO C99 hypot; Python's math.hypot (n arguments since 3.8)", _hypot_many_match, _hypot_many)
 
 
-# ---- logarithm of a product (NIST DLMF 4.8.2–4.8.4 under the signs the samples show) ----------------------------------
+# ---- logarithm of a product (NIST DLMF 4.8.2–4.8.4 under the signs the samples show) -------------------------------
 def _log_product_match(node: Node) -> Match | None:
     arg = dag.unary(node, "log")
     if arg is None or arg.kind not in ("mul", "div", "pow"):
@@ -170,7 +170,7 @@ LOG_OF_PRODUCT = Rule("log-of-product", "Write the logarithm of a product as a s
                       _log_product_match, _log_product)
 
 
-# ---- log(1 − (1 + u)ᵖ) (Mächler 2012, "Accurately computing log(1 − exp(−|a|))") ------------------------------------------
+# ---- log(1 − (1 + u)ᵖ) (Mächler 2012, "Accurately computing log(1 − exp(−|a|))") -----------------------------------
 def _log_one_minus_power_match(node: Node) -> Match | None:
     inner = dag.unary(node, "log")
     u = dag.unary(node, "log1p") if inner is None else dag.one_plus(inner)  # log1p(u) or log(1 + u)
