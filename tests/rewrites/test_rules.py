@@ -208,6 +208,18 @@ CASES = [
          "math.log(a) - math.log(b)", [], _f64(lambda a, b: np.log(a / b)), lambda a, b: math.log(a) - math.log(b),
          lambda a, b: mpmath.log(a / b), grid(np.geomspace(1e200, 1e300, 6), np.geomspace(1e-300, 1e-200, 6)),
          "NIST DLMF 4.8.3"),
+    Case("log-of-product", "import math\n"
+         "def f(a, b):  # condhint: 710 <= a <= 800, 1e-10 <= b <= 1\n    return math.log(math.exp(a) * b)\n",
+         "a + math.log(b)", [], _f64(lambda a, b: np.log(np.exp(a) * b)), lambda a, b: a + math.log(b),
+         lambda a, b: mpmath.log(mpmath.exp(a) * b), grid(np.linspace(710, 800, 6), np.geomspace(1e-10, 1, 6)),
+         "NIST DLMF 4.8.2"),
+    Case("log-of-product", "import math\ndef f(x):  # condhint: 1e110 <= x <= 1e300\n    return math.log(x ** 3)\n",
+         "3 * math.log(x)", [], _f64(lambda x: np.log(x ** 3)), lambda x: 3 * math.log(x),
+         lambda x: mpmath.log(x ** 3), geo(1e110, 1e300), "NIST DLMF 4.8.4"),
+    Case("softplus", "import math\ndef f(x):  # condhint: 30 <= x <= 1000\n    return math.log1p(math.exp(x))\n",
+         "max(x, 0) + math.log1p(math.exp(-abs(x)))", [], _f64(lambda x: np.log1p(np.exp(x))),
+         lambda x: max(x, 0) + math.log1p(math.exp(-abs(x))), lambda x: mpmath.log1p(mpmath.exp(x)),
+         geo(30, 1000), "common practice (softplus)"),
     Case("log-one-minus-power", "import numpy as np\n"
          "def f(x, c, d):  # condhint: 1e-6 <= x <= 1e-3, 1 <= c <= 5, 1 <= d <= 100\n"
          "    return np.log1p(-(1 + x**c)**(-d))\n",
