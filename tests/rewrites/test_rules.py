@@ -192,6 +192,11 @@ CASES = [
          lambda x, t: (t ** ((x + 0.5) / 2) * math.exp(-t / 2)) ** 2, lambda x, t: t ** (x + 0.5) * mpmath.exp(-t),
          grid(np.linspace(100, 170, 8), np.linspace(100, 200, 6)),
          "common practice (Cephes' Stirling formula for the gamma function)"),
+    Case("exp-product", "import math\n"
+         "def f(b, a):  # condhint: 710 <= a <= 800, 1e200 <= b <= 1e300\n    return b / math.exp(a)\n",
+         "b / math.exp(a / 2) / math.exp(a / 2)", [], _f64(lambda b, a: b / np.exp(a)),
+         lambda b, a: b / math.exp(a / 2) / math.exp(a / 2), lambda b, a: b / mpmath.exp(a),
+         grid(np.geomspace(1e200, 1e300, 6), np.linspace(710, 800, 6)), "common practice"),
     Case("hypot-many", "import math\n"
          "def f(x, y, z):  # condhint: 1e-200 <= x <= 1e200, 1e-200 <= y <= 1e200, 1e-200 <= z <= 1e200\n"
          "    return math.sqrt(x*x + y*y + z*z)\n",

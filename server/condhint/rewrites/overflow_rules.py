@@ -68,24 +68,36 @@ def _half_of(f: Node) -> Node:
     return dag.op("pow", f.args[0], dag.div(f.args[1], dag.const(2)) if k is None else dag.const(k / 2))
 
 
+def _times(out: Node | None, f: Node, e: int) -> Node:
+    """out·f (e = 1) or out/f (e = −1), out None standing for 1."""
+    if out is None:
+        return f if e == 1 else dag.div(dag.const(1), f)
+    return dag.mul(out, f) if e == 1 else dag.div(out, f)
+
+
 def _halved(m: Match, ctx: Context) -> Node | None:
-    """Π fᵢ^eᵢ with each exponential and power split in two equal halves h: h·(the other factors)·h, or h² when
-    there are no others (literal factors kept outside); each half is about the square root of the out-of-range
-    part."""
+    """Π fᵢ^eᵢ with each exponential and power split in two equal halves, h = n/d (n the halves multiplied, d
+    those divided): n·(the other factors)/d·n/d, or (n/d)² when there are no others (literal factors kept
+    outside); each half is about the square root of the out-of-range part."""
     factors = m["factors"]
     grows = [(f, e) for f, e in factors if _grows(f) and (f.kind == "exp" or ctx.positive(f.args[0]))]
     others = [(f, e) for f, e in factors if f.kind != CONST and not any(f is g for g, _ in grows)]
-    half: Node | None = None
+    num = den = None
     for f, e in grows:
-        h = _half_of(f)
-        half = (h if e == 1 else dag.div(dag.const(1), h)) if half is None else \
-            (dag.mul(half, h) if e == 1 else dag.div(half, h))
-    if half is None:
+        if e == 1:
+            num = _times(num, _half_of(f), 1)
+        else:
+            den = _times(den, _half_of(f), 1)
+    if num is None and den is None:
         return None
-    out = half
-    for f, e in others:
-        out = dag.mul(out, f) if e == 1 else dag.div(out, f)
-    out = dag.mul(out, half) if others else dag.power(half, 2)
+    if not others:
+        out = dag.power(_times(num, den, -1) if den is not None else num, 2)  # type: ignore[arg-type]
+    else:
+        out = num
+        for f, e in others:
+            out = _times(out, f, e)
+        for half, e in ((den, -1), (num, 1), (den, -1)):
+            out = out if half is None else _times(out, half, e)
     for c, e in ((f, e) for f, e in factors if f.kind == CONST):
         out = dag.mul(c, out) if e == 1 else dag.div(out, c)
     return out
