@@ -3,8 +3,9 @@ part of the formula is not. Each rewrite computes the same function without the 
 
 - `softplus`: log(1 + eˣ), log(eˣ + 1), log1p(eˣ) -> logaddexp(0, x) (numpy files) or
   max(x, 0) + log1p(e^−|x|) (the form of `log-sum-exp` where numpy cannot be spelled);
-- `exp-product`: eᵃ·b, eᵃ/c, xᵖ·e⁻ᵗ -> the exponentials and powers halved around the other factors,
-  e^(a/2)·b·e^(a/2) and (x^(p/2)·e^(−t/2))², each half about the square root of the out-of-range part. (One
+- `exp-product`: eᵃ·b, eᵃ/c, b/eᵃ, xᵖ·e⁻ᵗ -> the exponentials and powers halved around the other factors,
+  e^(a/2)·b·e^(a/2), b/e^(a/2)/e^(a/2) and (x^(p/2)·e^(−t/2))², each half about the square root of the
+  out-of-range part. (One
   exponential of the summed logarithms, e^(a + log b), was tried and left out: where the halves stay in range
   it is measured worse than the original on the points without overflow, as its exponent's rounding is
   magnified by |a|; where they do not, the exponent's terms exceed 1400 and cancel, losing ≥ 3 digits.)
