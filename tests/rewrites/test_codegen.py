@@ -148,3 +148,13 @@ def test_a_name_rebound_before_the_edit_is_not_used_for_its_old_value():
     assert sorted(names.values()) == ["d"]  # `s` no longer holds math.sqrt(x + 1) on the last line
     site, node = site_with(ma, "s - math.sqrt(x)")
     assert sorted(visible_names(ma.index, ma.index.constants, site, node).values()) == ["s"]
+
+
+@pytest.mark.parametrize("imp,fn,replacement", [
+    ("import math", "math.sqrt", "math.hypot(x, y, z)"),  # math.hypot takes n arguments (Python ≥ 3.8)
+    ("import numpy as np", "np.sqrt", "np.hypot(np.hypot(x, y), z)"),  # numpy's takes two: nested
+])
+def test_a_nest_of_a_variadic_function_is_one_call_only_where_the_function_takes_n_arguments(imp, fn, replacement):
+    src = f"{imp}\ndef f(x, y, z):  # condhint: 1e-200 <= x <= 1e200, 1e-200 <= y <= 1e200, 1e-200 <= z <= 1e200\n" \
+          f"    return {fn}(x*x + y*y + z*z)\n"
+    assert best_fix(src).replacement == replacement

@@ -2,6 +2,7 @@
 accuracy before and after on the rule's regime, measured here with mpmath (60 digits) on our own points."""
 from __future__ import annotations
 
+import functools
 import inspect
 import math
 from dataclasses import dataclass
@@ -39,6 +40,13 @@ def _deep(value: Callable[[], object]) -> object:
     """An mpmath value at 800 digits: 1 − e^−700 needs 304 of them to differ from one."""
     with mpmath.workdps(800):
         return +value()
+def _f64(formula: Callable[..., object]) -> Callable[..., float]:
+    """A formula in numpy's binary64 scalars: an overflow gives inf (Python's floats raise instead)."""
+    @functools.wraps(formula)  # its signature names the inputs
+    def run(*args: float) -> float:
+        with np.errstate(all="ignore"):
+            return float(formula(*(np.float64(a) for a in args)))  # type: ignore[arg-type]
+    return run
 
 
 def geo(lo: float, hi: float, n: int = 25) -> list[tuple[float]]:
@@ -279,6 +287,113 @@ CASES = [
          lambda a: math.log1p(-(2 / (math.exp(a) + 1))) if abs(2 / (math.exp(a) + 1)) < 0.5 else math.log(math.tanh(a / 2)),
          lambda a: _deep(lambda: mpmath.log(mpmath.tanh(a / 2))), geo(0.1, 700),
          "NIST DLMF 4.35.2 (tanh through exp); Goldberg 1991 (log1p)"),
+    Case("softplus", "import math\ndef f(x):  # condhint: 1 <= x <= 1000\n    return math.log(1 + math.exp(x))\n",
+         "max(x, 0) + math.log1p(math.exp(-abs(x)))", [], _f64(lambda x: np.log(1 + np.exp(x))),
+         lambda x: max(x, 0) + math.log1p(math.exp(-abs(x))), lambda x: mpmath.log(1 + mpmath.exp(x)),
+         geo(1, 1000), "common practice (softplus)"),
+    Case("softplus", "import numpy as np\ndef f(x):  # condhint: 30 <= x <= 1000\n    return np.log(np.exp(x) + 1)\n",
+         "np.logaddexp(0, x)", [], _f64(lambda x: np.log(np.exp(x) + 1)), lambda x: float(np.logaddexp(0, x)),
+         lambda x: mpmath.log(mpmath.exp(x) + 1), geo(30, 1000), "common practice (softplus; numpy logaddexp)"),
+    Case("exp-product", "import math\n"
+         "def f(a, b):  # condhint: 700 <= a <= 800, 1e-300 <= b <= 1e-200\n    return math.exp(a) * b\n",
+         "math.exp(a / 2) * b * math.exp(a / 2)", [], _f64(lambda a, b: np.exp(a) * b),
+         lambda a, b: math.exp(a / 2) * b * math.exp(a / 2), lambda a, b: mpmath.exp(a) * b,
+         grid(np.linspace(700, 800, 6), np.geomspace(1e-300, 1e-200, 6)), "common practice"),
+    Case("exp-product", "import math\n"
+         "def f(x, t):  # condhint: 100 <= x <= 170, 100 <= t <= 200\n    return t ** (x + 0.5) * math.exp(-t)\n",
+         "(t ** ((x + 0.5) / 2) * math.exp(-t / 2)) ** 2", [], _f64(lambda x, t: t ** (x + 0.5) * np.exp(-t)),
+         lambda x, t: (t ** ((x + 0.5) / 2) * math.exp(-t / 2)) ** 2, lambda x, t: t ** (x + 0.5) * mpmath.exp(-t),
+         grid(np.linspace(100, 170, 8), np.linspace(100, 200, 6)),
+         "common practice (Cephes' Stirling formula for the gamma function)"),
+    Case("exp-product", "import math\n"
+         "def f(b, a):  # condhint: 710 <= a <= 800, 1e200 <= b <= 1e300\n    return b / math.exp(a)\n",
+         "b / math.exp(a / 2) / math.exp(a / 2)", [], _f64(lambda b, a: b / np.exp(a)),
+         lambda b, a: b / math.exp(a / 2) / math.exp(a / 2), lambda b, a: b / mpmath.exp(a),
+         grid(np.geomspace(1e200, 1e300, 6), np.linspace(710, 800, 6)), "common practice"),
+    Case("hypot-many", "import math\n"
+         "def f(x, y, z):  # condhint: 1e-200 <= x <= 1e200, 1e-200 <= y <= 1e200, 1e-200 <= z <= 1e200\n"
+         "    return math.sqrt(x*x + y*y + z*z)\n",
+         "math.hypot(x, y, z)", [], _f64(lambda x, y, z: np.sqrt(x * x + y * y + z * z)), math.hypot,
+         lambda x, y, z: mpmath.sqrt(x * x + y * y + z * z),
+         grid(*[np.geomspace(1e-200, 1e200, 5)] * 3), "ISO C99 hypot; Python's math.hypot"),
+    Case("log-of-product", "import math\n"
+         "def f(a, b):  # condhint: 1e200 <= a <= 1e300, 1e200 <= b <= 1e300\n    return math.log(a * b)\n",
+         "math.log(a) + math.log(b)", [], _f64(lambda a, b: np.log(a * b)), lambda a, b: math.log(a) + math.log(b),
+         lambda a, b: mpmath.log(a * b), grid(np.geomspace(1e200, 1e300, 6), np.geomspace(1e200, 1e300, 6)),
+         "NIST DLMF 4.8.2"),
+    Case("log-of-product", "import math\n"
+         "def f(a, b):  # condhint: 1e200 <= a <= 1e300, 1e-300 <= b <= 1e-200\n    return math.log(a / b)\n",
+         "math.log(a) - math.log(b)", [], _f64(lambda a, b: np.log(a / b)), lambda a, b: math.log(a) - math.log(b),
+         lambda a, b: mpmath.log(a / b), grid(np.geomspace(1e200, 1e300, 6), np.geomspace(1e-300, 1e-200, 6)),
+         "NIST DLMF 4.8.3"),
+    Case("log-of-product", "import math\n"
+         "def f(a, b):  # condhint: 710 <= a <= 800, 1e-10 <= b <= 1\n    return math.log(math.exp(a) * b)\n",
+         "a + math.log(b)", [], _f64(lambda a, b: np.log(np.exp(a) * b)), lambda a, b: a + math.log(b),
+         lambda a, b: mpmath.log(mpmath.exp(a) * b), grid(np.linspace(710, 800, 6), np.geomspace(1e-10, 1, 6)),
+         "NIST DLMF 4.8.2"),
+    Case("log-of-product", "import math\ndef f(x):  # condhint: 1e110 <= x <= 1e300\n    return math.log(x ** 3)\n",
+         "3 * math.log(x)", [], _f64(lambda x: np.log(x ** 3)), lambda x: 3 * math.log(x),
+         lambda x: mpmath.log(x ** 3), geo(1e110, 1e300), "NIST DLMF 4.8.4"),
+    Case("softplus", "import math\ndef f(x):  # condhint: 30 <= x <= 1000\n    return math.log1p(math.exp(x))\n",
+         "max(x, 0) + math.log1p(math.exp(-abs(x)))", [], _f64(lambda x: np.log1p(np.exp(x))),
+         lambda x: max(x, 0) + math.log1p(math.exp(-abs(x))), lambda x: mpmath.log1p(mpmath.exp(x)),
+         geo(30, 1000), "common practice (softplus)"),
+    Case("log-one-minus-power", "import numpy as np\n"
+         "def f(x, c, d):  # condhint: 1e-6 <= x <= 1e-3, 1 <= c <= 5, 1 <= d <= 100\n"
+         "    return np.log1p(-(1 + x**c)**(-d))\n",
+         "np.log(-np.expm1(-d * np.log1p(x**c)))", [], _f64(lambda x, c, d: np.log1p(-(1 + x ** c) ** (-d))),
+         lambda x, c, d: math.log(-math.expm1(-d * math.log1p(x ** c))),
+         lambda x, c, d: mpmath.log1p(-(1 + x ** c) ** (-d)),
+         grid(np.geomspace(1e-6, 1e-3, 5), np.linspace(1, 5, 5), np.geomspace(1, 100, 4)),
+         "Mächler 2012 (log1mexp); Higham 2002"),
+    Case("vector-angle", "import math\n"
+         "def f(ax, ay, bx, by):  # condhint: 1 <= ax <= 2, 1e-9 <= ay <= 1e-8, 1 <= bx <= 2, -1e-8 <= by <= -1e-9\n"
+         "    return math.acos((ax*bx + ay*by) / (math.hypot(ax, ay) * math.hypot(bx, by)))\n",
+         "math.atan2(abs(ax * by - ay * bx), ax*bx + ay*by)", [],
+         _f64(lambda ax, ay, bx, by: np.arccos((ax * bx + ay * by) / (np.hypot(ax, ay) * np.hypot(bx, by)))),
+         lambda ax, ay, bx, by: math.atan2(abs(ax * by - ay * bx), ax * bx + ay * by),
+         lambda ax, ay, bx, by: mpmath.acos((ax * bx + ay * by) / (mpmath.hypot(ax, ay) * mpmath.hypot(bx, by))),
+         grid(np.array([1.0, 1.7]), np.geomspace(1e-9, 1e-8, 3), np.array([1.2, 2.0]), -np.geomspace(1e-9, 1e-8, 3)),
+         "Kahan 2006 (\"Mindless…\"); common practice"),
+    Case("vector-angle", "import math\n"
+         "def f(ax, ay, az, bx, by, bz):  # condhint: 1 <= ax <= 2, 1e-9 <= ay <= 1e-8, 1e-9 <= az <= 1e-8, "
+         "1 <= bx <= 2, -1e-8 <= by <= -1e-9, -1e-8 <= bz <= -1e-9\n"
+         "    return math.acos((ax*bx + ay*by + az*bz) / (math.sqrt(ax*ax + ay*ay + az*az) "
+         "* math.sqrt(bx*bx + by*by + bz*bz)))\n",
+         "math.atan2(math.hypot(ay * bz - az * by, az * bx - ax * bz, ax * by - ay * bx), ax*bx + ay*by + az*bz)", [],
+         lambda ax, ay, az, bx, by, bz: math.acos((ax * bx + ay * by + az * bz) / (
+             math.sqrt(ax * ax + ay * ay + az * az) * math.sqrt(bx * bx + by * by + bz * bz))),
+         lambda ax, ay, az, bx, by, bz: math.atan2(
+             math.hypot(ay * bz - az * by, az * bx - ax * bz, ax * by - ay * bx), ax * bx + ay * by + az * bz),
+         lambda ax, ay, az, bx, by, bz: mpmath.acos((ax * bx + ay * by + az * bz) / (
+             mpmath.sqrt(ax * ax + ay * ay + az * az) * mpmath.sqrt(bx * bx + by * by + bz * bz))),
+         [(1.0 + k / 7, 1e-9 * (1 + k), 3e-9 + k * 5e-10, 2.0 - k / 9, -2e-9 * (1 + k % 4), -1e-8 + k * 3e-10)
+          for k in range(16)], "Kahan 2006 (\"Mindless…\"); common practice"),
+    Case("acos-one-minus", "import math\ndef f(y):  # condhint: 1e-12 <= y <= 1e-3\n    return math.acos(1 - y)\n",
+         "2 * math.atan2(math.sqrt(y / 2), math.sqrt(1 - y / 2))", [], lambda y: math.acos(1 - y),
+         lambda y: 2 * math.atan2(math.sqrt(y / 2), math.sqrt(1 - y / 2)),
+         lambda y: mpmath.acos(1 - y), geo(1e-12, 1e-3), "NIST DLMF ch. 4 (half-angle formulas)"),
+    Case("haversine", "import math\n"
+         "def f(a, b, dl):  # condhint: 0.5 <= a <= 0.5001, 0.5 <= b <= 0.5001, 1e-8 <= dl <= 1e-5\n"
+         "    return math.acos(math.sin(a)*math.sin(b) + math.cos(a)*math.cos(b)*math.cos(dl))\n",
+         "2 * math.atan2(math.sqrt(math.sin((b - a) / 2) ** 2 + math.cos(a) * math.cos(b) * math.sin(dl / 2) ** 2), "
+         "math.sqrt(math.sin((a + b) / 2) ** 2 + math.cos(a) * math.cos(b) * math.cos(dl / 2) ** 2))", [],
+         _f64(lambda a, b, dl: np.arccos(np.sin(a) * np.sin(b) + np.cos(a) * np.cos(b) * np.cos(dl))),
+         lambda a, b, dl: 2 * math.atan2(
+             math.sqrt(math.sin((b - a) / 2) ** 2 + math.cos(a) * math.cos(b) * math.sin(dl / 2) ** 2),
+             math.sqrt(math.sin((a + b) / 2) ** 2 + math.cos(a) * math.cos(b) * math.cos(dl / 2) ** 2)),
+         lambda a, b, dl: mpmath.acos(mpmath.sin(a) * mpmath.sin(b) + mpmath.cos(a) * mpmath.cos(b) * mpmath.cos(dl)),
+         grid(np.linspace(0.5, 0.5001, 4), np.linspace(0.5, 0.5001, 3), np.geomspace(1e-8, 1e-5, 4)),
+         "Sinnott 1984 (Virtues of the Haversine)"),
+    Case("law-of-cosines", "import math\n"
+         "def f(a, b, g):  # condhint: 1 <= a <= 2, 1 <= b <= 2, 1e-8 <= g <= 1e-4\n"
+         "    return math.sqrt(a*a + b*b - 2*a*b*math.cos(g))\n",
+         "(a - b) ** 2 + 4 * a * b * math.sin(g / 2) ** 2", [],
+         lambda a, b, g: math.sqrt(a * a + b * b - 2 * a * b * math.cos(g)),
+         lambda a, b, g: math.sqrt((a - b) ** 2 + 4 * a * b * math.sin(g / 2) ** 2),
+         lambda a, b, g: mpmath.sqrt(a * a + b * b - 2 * a * b * mpmath.cos(g)),
+         [(1.0 + k / 20, 1.0 + k / 20 + 1e-9 * k, 1e-8 * 1.5 ** k) for k in range(20)],
+         "NIST DLMF ch. 4 (half-angle formula)"),
 ]
 
 
@@ -301,6 +416,23 @@ def test_rule_output_and_measured_accuracy(case: Case):
     # The evidence recorded on the fix agrees: a real loss before (not more than there is), little after.
     assert fix.measured_digits_lost_after <= 1.0
     assert 3.0 <= fix.measured_digits_lost_before <= before + 0.5
+
+
+FAR_END = {  # points far from each angle rule's regime, where the inverse cosine is near −1
+    "acos-one-minus": [(2 - float(d),) for d in np.geomspace(1e-15, 1e-1, 25)],
+    "haversine": [(a, -a + float(d), math.pi - float(e)) for a in (-1.2, 0.3, 1.0)
+                  for d in np.geomspace(1e-12, 1e-2, 4) for e in np.geomspace(1e-12, 1e-2, 4)],
+}
+
+
+@pytest.mark.parametrize("rule", sorted(FAR_END))
+def test_an_angle_fix_is_nowhere_worse_on_the_whole_domain(rule):
+    # Near an angle of π the half-angle sine is near 1: 2·asin of it would lose up to 8 digits more than the
+    # original there (common practice; measured with mpmath at 60 digits); the fixes' atan2 forms do not.
+    case = next(c for c in CASES if c.rule == rule)
+    for point in FAR_END[rule]:
+        before = worst_loss(case.before, case.exact, [point])
+        assert worst_loss(case.after, case.exact, [point]) <= max(before, 0.5) + 0.25, point
 
 
 def test_every_rule_has_a_case():
@@ -369,6 +501,40 @@ MUST_NOT_FIRE = [
      "measured"),
     ("log-near-one", "import math\ndef f(x, y):  # condhint: 10 <= x <= 1e6, 10 <= y <= 1e6\n"
      "    return math.log(x + y)\n", "math.log(x + y)", "measured"),
+    ("softplus", "import math\ndef f(x):  # condhint: 0 <= x <= 5\n    return math.log(1 + math.exp(x))\n",
+     "math.log(1 + math.exp(x))", "measured"),
+    ("exp-product", "import math\ndef f(a, b):  # condhint: 1 <= a <= 5, 1 <= b <= 2\n    return math.exp(a) * b\n",
+     "math.exp(a) * b", "measured"),
+    ("exp-product", "import math\ndef f(a):  # condhint: 700 <= a <= 800\n    return math.exp(a) * 1e-300\n",
+     "math.exp(a) * 1e-300", "precondition"),  # one factor besides literals: nothing to balance it with
+    ("hypot-many", "import math\ndef f(x, y, z):  # condhint: 1 <= x <= 10, 1 <= y <= 10, 1 <= z <= 10\n"
+     "    return math.sqrt(x*x + y*y + z*z)\n", "math.sqrt(x*x + y*y + z*z)", "measured"),
+    ("log-of-product", "import math\n"
+     "def f(a, b):  # condhint: 1 <= a <= 10, 1 <= b <= 10\n    return math.log(a * b)\n",
+     "math.log(a * b)", "measured"),
+    ("log-of-product", "import math\ndef f(a, b):  # condhint: -2 <= a <= 2, 1 <= b <= 2\n    return math.log(a * b)\n",
+     "math.log(a * b)", "precondition"),
+    ("log-one-minus-power", "import math\ndef f(x):  # condhint: 2 <= x <= 3\n    return math.log1p(-(1 - x) ** 2)\n",
+     "math.log1p(-(1 - x) ** 2)", "precondition"),
+    ("log-one-minus-power", "import math\ndef f(x, d):  # condhint: 1 <= x <= 2, 1 <= d <= 2\n"
+     "    return math.log1p(-(1 + x) ** (-d))\n", "math.log1p(-(1 + x) ** (-d))", "measured"),
+    ("vector-angle", "import math\n"
+     "def f(ax, ay, bx, by):  # condhint: 1 <= ax <= 2, 1 <= ay <= 2, -2 <= bx <= -1, 1 <= by <= 2\n"
+     "    return math.acos((ax*bx + ay*by) / (math.hypot(ax, ay) * math.hypot(bx, by)))\n",
+     "math.acos((ax*bx + ay*by) / (math.hypot(ax, ay) * math.hypot(bx, by)))", "measured"),
+    ("vector-angle", "import math\n"
+     "def f(ax, ay, bx, by):  # condhint: 1 <= ax <= 2, 1 <= ay <= 2, 1 <= bx <= 2, 1 <= by <= 2\n"
+     "    return math.acos((ax*bx + ay*bx) / (math.hypot(ax, ay) * math.hypot(bx, by)))\n",
+     "math.acos((ax*bx + ay*bx) / (math.hypot(ax, ay) * math.hypot(bx, by)))", "precondition"),  # not a dot product
+    ("acos-one-minus", "import math\ndef f(y):  # condhint: 0.5 <= y <= 1.5\n    return math.acos(1 - y)\n",
+     "math.acos(1 - y)", "measured"),
+    ("acos-one-minus", "import math\ndef f(y):  # condhint: -1 <= y <= 1\n    return math.acos(1 - y)\n",
+     "math.acos(1 - y)", "precondition"),
+    ("haversine", "import math\ndef f(a, b, dl):  # condhint: 0 <= a <= 1, 0 <= b <= 1, 1 <= dl <= 2\n"
+     "    return math.acos(math.sin(a)*math.sin(b) + math.cos(a)*math.cos(b)*math.cos(dl))\n",
+     "math.acos(math.sin(a)*math.sin(b) + math.cos(a)*math.cos(b)*math.cos(dl))", "measured"),
+    ("law-of-cosines", "import math\ndef f(a, b, g):  # condhint: 1 <= a <= 2, 1 <= b <= 2, 1 <= g <= 2\n"
+     "    return math.sqrt(a*a + b*b - 2*a*b*math.cos(g))\n", "a*a + b*b - 2*a*b*math.cos(g)", "measured"),
 ]
 
 

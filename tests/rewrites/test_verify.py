@@ -10,7 +10,7 @@ import numpy as np
 
 from condhint.config import Config
 from condhint.rewrites import dag
-from condhint.rewrites.verify import Bench, prove
+from condhint.rewrites.verify import Bench, _agree, prove
 from tests.rewrites.support import analysed, digits_lost, site_with
 
 
@@ -104,3 +104,37 @@ def test_values_below_binary64_range_agree():
 def _inputs(node):
     from condhint.expr import INPUT, topological
     return [n for n in topological(node) if n.kind == INPUT]
+def test_an_overflowing_original_against_a_finite_candidate_that_agrees_in_mpmath_is_a_gain():
+    # exp(a)·b overflows in exp(a) for a > 709.78 while the product is ordinary; exp(a/2)·b·exp(a/2) does not
+    # (common practice). Its reference, mpmath at 60 digits, is that of the original.
+    src = "import math\ndef f(a, b):  # condhint: 700 <= a <= 800, 1e-300 <= b <= 1e-200\n    return math.exp(a) * b\n"
+
+    def halved(n):
+        half = dag.call("exp", dag.div(n.args[0].args[0], dag.const(2)))
+        return dag.mul(dag.mul(half, n.args[1]), half)
+
+    ev, bench, *_ = _judge(src, "math.exp(a) * b", halved)
+    assert ev.ok and ev.before == bench.total and ev.after <= 0.5
+    with np.errstate(over="ignore"):
+        overflows = [(a, b) for a, b in zip(bench.cols["a"], bench.cols["b"]) if not np.isfinite(np.exp(a) * b)]
+    assert overflows
+    with mpmath.workdps(60):
+        assert max(digits_lost(math.exp(a / 2) * b * math.exp(a / 2), mpmath.exp(a) * b) for a, b in overflows) <= 0.5
+
+
+def test_a_power_the_reference_saturates_agrees_with_the_same_value_computed_otherwise():
+    # t**(x + 0.5)·e^(−t) is computed as inf by the reference where |(x + 0.5)·log2 t| > 2**14 (no format holds
+    # it); the candidate's mpmath value is finite there, and beyond every format's range too.
+    src = "import math\ndef f(x, t):  # condhint: 5000 <= x <= 6000, 10 <= t <= 20\n" \
+          "    return t ** (x + 0.5) * math.exp(-t)\n"
+    ma = analysed(src)
+    site, node = site_with(ma, "t ** (x + 0.5) * math.exp(-t)")
+    bench = Bench(site, Config())
+    pw, ex = node.args
+    cand = dag.call("exp", dag.sub(dag.mul(pw.args[1], dag.call("log", pw.args[0])), ex.args[0].args[0]))
+    idx = np.arange(4)
+    orig = bench.reference(site.root, idx, None)
+    other = bench.reference(dag.substitute(site.root, node, cand), idx, None)
+    assert all(mpmath.isinf(r) and _agree(r, c, 1e-20) for (r, _), (c, _) in zip(orig, other))
+    assert not _agree(mpmath.inf, mpmath.mpf(10) ** 400, 1e-20)  # inf against a value some format could hold
+    assert not _agree(mpmath.inf, -mpmath.mpf(2) ** 20000, 1e-20)  # nor against the other sign

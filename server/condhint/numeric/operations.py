@@ -28,6 +28,7 @@ def _logaddexp(a: Any, b: Any) -> Any:
 
 
 _BEYOND = 16384  # log2 of binary128's range: a power beyond it is inf or 0 for every format we model
+SATURATED = mpmath.mpf(2) ** _BEYOND  # a power whose size is beyond it is computed as ±inf (±0 under its inverse)
 
 
 def _mp_pow(a: Any, b: Any) -> Any:

@@ -308,9 +308,18 @@ class Emitter:
             return f"{_par(a[0], a[1] <= SELECT_P)} if {_par(c[0], c[1] <= SELECT_P)} else {b[0]}", SELECT_P
         if node.kind in OPERATIONS:
             name = self.spelling.function(node.kind)
-            args = ", ".join(_par(t, p < SELECT_P) for t, p in (self._emit(a) for a in node.args))
+            args = ", ".join(_par(t, p < SELECT_P) for t, p in (self._emit(a) for a in self._folded(node)))
             return f"{name}({args})", ATOM_P
         raise Unspellable(f"cannot write {node.kind}")
+
+    def _folded(self, node: Node) -> list[Node]:
+        """The arguments of a call, a rule-built nest of a variadic function unfolded where it is not numpy's
+        (`math.hypot(x, y, z)`, `max(a, b, c)`; numpy's hypot and maximum take two)."""
+        first = node.args[0]
+        if self.spelling.array_style or not OPERATIONS[node.kind].signature.folds or first.kind != node.kind or \
+                id(first) in self.names or self.reuse(first) is not None:
+            return list(node.args)
+        return self._folded(first) + list(node.args[1:])
 
     def _cast(self, node: Node) -> tuple[str, int]:
         """A conversion: implicit for a Python number (numpy converts it where it meets the other operand),

@@ -160,6 +160,35 @@ def product_factors(node: Node, within: "Span | None" = None) -> list[Node]:
     return [node]
 
 
+def quotient_factors(node: Node, within: "Span | None" = None) -> list[tuple[Node, int]]:
+    """The factors of a chain of multiplications and divisions with their exponents ±1 (a*b/c -> [(a, 1),
+    (b, 1), (c, -1)]), written in one place like `product_factors`."""
+    within = within or node.span
+    if node.kind in ("mul", "div") and (node.span is None or within is None or within.contains(node.span)):
+        e = 1 if node.kind == "mul" else -1
+        return quotient_factors(node.args[0], within) + [(f, s * e) for f, s in quotient_factors(node.args[1], within)]
+    return [(node, 1)]
+
+
+def summands(node: Node, within: "Span | None" = None) -> list[Node]:
+    """The terms of a chain of additions (a + b + c -> [a, b, c]), written in one place like `product_factors`."""
+    within = within or node.span
+    if node.kind == "add" and (node.span is None or within is None or within.contains(node.span)):
+        return summands(node.args[0], within) + summands(node.args[1], within)
+    return [node]
+
+
+def one_plus(node: Node) -> Node | None:
+    """u when node computes 1 + u (u = −v for 1 − v; the literal one on either side)."""
+    terms = signed_terms(node)
+    if terms is None:
+        return None
+    for (s1, one), (s2, u) in (terms, terms[::-1]):
+        if s1 == 1 and one.kind == CONST and is_const(one, 1):
+            return u if s2 == 1 else neg(u)
+    return None
+
+
 def inputs(node: Node) -> set[str]:
     return {n.name for n in topological(node) if n.kind == INPUT and n.name is not None}
 

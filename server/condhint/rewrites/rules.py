@@ -7,7 +7,6 @@ sympy's own optimisation on the target; the others work on our DAG directly.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
 from fractions import Fraction
 from typing import Any, Callable
 
@@ -15,27 +14,10 @@ from sympy.codegen import rewriting as sr
 
 from condhint.expr import CONST, Node
 from condhint.rewrites import dag, primitives, sym
+from condhint.rewrites.angle_rules import ANGLE_RULES
 from condhint.rewrites.context import Context
-
-Match = dict[str, Any]
-
-
-@dataclass(frozen=True)
-class Rule:
-    id: str
-    title: str  # the quick-fix menu text
-    domain: str  # preconditions, in words
-    source: str  # where the identity comes from
-    match: Callable[[Node], Match | None]
-    build: Callable[[Match, Context], list[Node]]
-    requires: Callable[[Match, Context], bool] = lambda m, ctx: True
-    cost: int = 1  # among equally accurate fixes the cheaper one is offered first
-
-    def candidates(self, node: Node, ctx: Context) -> list[Node]:
-        m = self.match(node)
-        if m is None or not self.requires(m, ctx):
-            return []
-        return [c for c in self.build(m, ctx) if c is not None]
+from condhint.rewrites.overflow_rules import OVERFLOW_RULES
+from condhint.rewrites.rule import Match, Rule
 
 
 # ---- matchers ---------------------------------------------------------------------------------------------------
@@ -475,8 +457,9 @@ QUADRATIC_ROOT = Rule(
 
 
 RULES: tuple[Rule, ...] = (  # specific identities first, general algebra last
-    QUADRATIC_ROOT, ASINH, LOGADDEXP, HYPOT, COMPOUND_POWER, LOG_DIFFERENCE, EXP_DIFFERENCE, ONE_MINUS_COS,
-    COS_MINUS_ONE, TAN_MINUS_SIN, COS_DIFFERENCE, SIN_DIFFERENCE, ERF_DIFFERENCE, EXPM1, LOG1P, NEAR_ONE_DIFFERENCE, LOG_NEAR_ONE, SQRT_DIFFERENCE, SQRT_AND_TERM,
+    QUADRATIC_ROOT, ASINH, *ANGLE_RULES, LOGADDEXP, HYPOT, *OVERFLOW_RULES,
+    COMPOUND_POWER, LOG_DIFFERENCE, EXP_DIFFERENCE, ONE_MINUS_COS, COS_MINUS_ONE, TAN_MINUS_SIN, COS_DIFFERENCE,
+    SIN_DIFFERENCE, ERF_DIFFERENCE, EXPM1, LOG1P, NEAR_ONE_DIFFERENCE, LOG_NEAR_ONE, SQRT_DIFFERENCE, SQRT_AND_TERM,
     COMBINE_FRACTIONS, QUOTIENT_MINUS_ONE, DIFFERENCE_OF_SQUARES, LOG_SUM_EXP, LOG2, EXP2,
 )
 BY_ID = {r.id: r for r in RULES}
