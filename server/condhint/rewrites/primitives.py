@@ -14,10 +14,11 @@ from __future__ import annotations
 from fractions import Fraction
 from typing import Any, Callable, Iterator
 
+import numpy as np
 import sympy as sp
 
 from condhint.budget import OverBudget, run_with_budget
-from condhint.expr import CONST, Node, topological
+from condhint.expr import CONST, SELECT, Node, topological
 from condhint.rewrites import dag, sym
 from condhint.rewrites.context import Context
 
@@ -36,11 +37,17 @@ def _log1p() -> Any:
     return sym.named("log1p")
 
 
-def log_of(base: Expr) -> Expr:
+def log_of(base: Expr, branch: bool = False) -> Expr:
     """log(base) without cancellation: `log1p(base − 1)` when `base − 1` normalises to something other than
-    itself (`1 + x` gives `log1p(x)`, `(1 − q)/(1 + q)` gives `log1p(−2q/(1 + q))`, `x` stays `log(x)`)."""
+    itself (`1 + x` gives `log1p(x)`, `(1 − q)/(1 + q)` gives `log1p(−2q/(1 + q))`, `x` stays `log(x)`).
+    `log1p(d)` is only good near d = 0: far from it (a base near 0) `1 + d` cancels inside log1p where `base` may
+    be exact. `branch` writes the choice out: log1p(d) where |d| < 1/2, log(base) elsewhere."""
     near = [f for f in _normal_forms(base - 1) if f.as_coeff_Add()[0] == 0]
-    return _log1p()(near[0]) if near else sp.log(base)
+    if not near:
+        return sp.log(base)
+    d = near[0]
+    return sp.Piecewise((_log1p()(d), sp.Abs(d) < sp.Rational(1, 2)), (sp.log(base), True)) if branch \
+        else _log1p()(d)
 
 
 def _log1p_direct(e: Expr) -> Expr:
@@ -73,7 +80,7 @@ def _factor_over_atoms(e: Expr) -> Expr:
     return sp.factor(e.xreplace(there)).xreplace(back)
 
 
-def _exponent(t: Expr) -> Expr | None:
+def _exponent(t: Expr, branch: bool = False) -> Expr | None:
     """L with t = exp(L) for a power, an exponential or a product of them; None otherwise."""
     if isinstance(t, sp.exp):
         return t.args[0]
@@ -83,18 +90,18 @@ def _exponent(t: Expr) -> Expr | None:
             return e
         if base.is_number:
             return e * sp.log(base) if base.is_positive else None
-        return e * log_of(base)
+        return e * log_of(base, branch)
     if t.is_Mul:
-        parts = [_exponent(f) for f in sp.Mul.make_args(t)]
+        parts = [_exponent(f, branch) for f in sp.Mul.make_args(t)]
         return sp.Add(*parts) if all(p is not None for p in parts) and len(parts) > 1 else None
     return None
 
 
-def minus_one(t: Expr) -> Expr | None:
+def minus_one(t: Expr, branch: bool = False) -> Expr | None:
     """t − 1 without cancellation for t = exp(L), a power or cos(u); None when t is none of these."""
     if isinstance(t, sp.cos):
         return -2 * sp.sin(t.args[0] / 2) ** 2
-    L = _exponent(t)
+    L = _exponent(t, branch)
     return None if L is None else _expm1()(L)
 
 
@@ -159,9 +166,10 @@ def near_one_differences(e: Expr) -> Iterator[Expr]:
         orientations = orientations[:1] if q == 1 else orientations[1:]
     for num, den, sign in orientations:
         ratio = sp.powsimp(sp.together(num / den), force=False)
-        m = minus_one(ratio)
-        if m is not None:
-            yield sign * den * m if den != 1 else sign * m
+        for branch in (False, True):
+            m = minus_one(ratio, branch)
+            if m is not None:
+                yield sign * den * m if den != 1 else sign * m
 
 
 def near_one_logs(e: Expr) -> Iterator[Expr]:
@@ -225,7 +233,29 @@ def candidates(node: Node, ctx: Context, kind: str) -> list[Node]:
             if len(out) >= MAX_CANDIDATES:
                 return out
     out = [c for c in out if any(n.kind in ("expm1", "log1p", "sin") for n in topological(c))]
-    return out + [b for c in out if (b := _branch_near_one(c, node)) is not None] if kind == "logs" else out
+    if kind == "logs":
+        out += [b for c in out if (b := _branch_near_one(c, node)) is not None]
+    return [c for c in out if not _log1p_far_from_zero(c, ctx)]
+
+
+def _log1p_far_from_zero(candidate: Node, ctx: Context) -> bool:
+    """Whether an unbranched log1p(d) of the candidate sees |d| ≥ 1/2 on the samples: there 1 + d may cancel (a
+    logarithm of a value near 0) and between samples it may cancel badly (log cos t near t = π/2); the candidate
+    with the branch is proposed instead."""
+    guarded = {id(n.args[1]) for n in topological(candidate) if n.kind == SELECT}
+    for n in topological(candidate):
+        if n.kind == "log1p" and not any(id(n) == g or _within(n, g, candidate) for g in guarded):
+            with np.errstate(all="ignore"):
+                v = ctx.bench.values(n.args[0])
+            if np.any(np.abs(v[np.isfinite(v)]) >= 0.5):
+                return True
+    return False
+
+
+def _within(node: Node, root_id: int, candidate: Node) -> bool:
+    """Whether `node` lies under the node with id `root_id` in `candidate`."""
+    root = next((n for n in topological(candidate) if id(n) == root_id), None)
+    return root is not None and any(n is node for n in topological(root))
 
 
 def _branch_near_one(candidate: Node, original: Node) -> Node | None:
