@@ -13,6 +13,7 @@ HERE = Path(__file__).parent
 LABELS = HERE / "labelled_real_code.json"
 FIXES = HERE / "labelled_fixes.json"  # round one: fixes of an older tool, kept as history
 FIXES_CURRENT = HERE / "labelled_fixes_current.json"  # fixes the tool offers now
+FIXES_FAMILIES = HERE / "labelled_fixes_families.json"  # every fix offered on the set's real findings (issue 16)
 VERDICTS = ("real", "range-guess", "wrong")
 SEVERE = ("warning", "error")
 

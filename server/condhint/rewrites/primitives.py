@@ -19,7 +19,7 @@ import sympy as sp
 
 from condhint.budget import OverBudget, run_with_budget
 from condhint.expr import CONST, SELECT, Node, topological
-from condhint.rewrites import dag, sym
+from condhint.rewrites import codegen, dag, sym
 from condhint.rewrites.context import Context
 
 Expr = Any  # a sympy expression
@@ -235,6 +235,8 @@ def candidates(node: Node, ctx: Context, kind: str) -> list[Node]:
     out = [c for c in out if any(n.kind in ("expm1", "log1p", "sin") for n in topological(c))]
     if kind == "logs":
         out += [b for c in out if (b := _branch_near_one(c, node)) is not None]
+    if codegen.call_inputs(node):
+        return out  # a branch would call the target's unknown functions twice: the plain form is all there is
     return [c for c in out if not _log1p_far_from_zero(c, ctx)]
 
 
