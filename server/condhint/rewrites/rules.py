@@ -303,7 +303,7 @@ ASINH = Rule(
 # ---- values near one: cancellation-free primitives from normalised operands (`primitives.py`) ---------------------------
 NEAR_ONE_DIFFERENCE = Rule(
     "near-one-difference", "Write the difference of close powers or exponentials with expm1", "P/Q > 0",
-    "NIST DLMF ch. 4; Goldberg 1991; Higham 2002", lambda n: {"t": n} if dag.difference(n) else None,
+    "NIST DLMF ch. 4; Goldberg 1991; Higham 2002", lambda n: {"t": n} if n.kind in ("add", "sub") else None,
     lambda m, ctx: primitives.candidates(m["t"], ctx, "differences"))
 LOG_NEAR_ONE = Rule(
     "log-near-one", "Write the logarithm of a value near one with log1p", "argument > 0",
