@@ -1,8 +1,9 @@
 """A content-addressed on-disk cache of file analyses, so `check` of an unchanged tree is nearly free.
 
 Key: sha256 over the file's bytes, condhint's version (and a digest of its own source, so a development
-checkout never reads entries written by other code), the resolved settings for the file and whether fixes
-were searched. Value: the file report as JSON (findings with their fixes, suppressed findings, status).
+checkout never reads entries written by other code), the resolved settings for the file, whether fixes
+were searched and, when fixes or κ formulas are computed only for the findings a run writes, what decides
+those (`review.written`). Value: the file report as JSON (findings with their fixes, suppressed findings, status).
 The path is not part of the key: equal files share an entry and get the path they are checked under.
 
 Safe to share between processes and CI runs: an entry is written to a temporary file in the same directory
@@ -95,9 +96,9 @@ class DiskCache:
         self.hits = self.misses = 0
         self._written = 0  # bytes written since the last size check
 
-    def key(self, raw: bytes, cfg: Config, fixes: bool = False) -> str:
+    def key(self, raw: bytes, cfg: Config, fixes: bool = False, variant: str = "") -> str:
         h = hashlib.sha256()
-        for part in (code_digest(), repr(cfg), str(bool(fixes))):
+        for part in (code_digest(), repr(cfg), str(bool(fixes)), variant):
             h.update(part.encode() + b"\0")
         h.update(raw)
         return h.hexdigest()
@@ -177,15 +178,16 @@ class DiskCache:
             _unlink(p)
 
     def check_target(self, target: Any, cfg: Config, fixes: bool,
-                     check: Callable[[Any, Config, bool], FileReport]) -> FileReport:
-        """`check(target, cfg, fixes)`'s report, from the cache when the file's bytes were seen before."""
+                     check: Callable[[Any, Config, bool], FileReport], variant: str = "") -> FileReport:
+        """`check(target, cfg, fixes)`'s report, from the cache when the file's bytes were seen before
+        (`variant`: anything else the report depends on)."""
         try:
             raw = target.path.read_bytes()
         except OSError:
             return check(target, cfg, fixes)  # reported as unreadable by `check`
         # inlined calls into the package's other files make the report depend on them (issue 15)
         stamp = dependency_stamp(raw.decode("utf-8", "replace"), str(target.path))
-        key = self.key(raw + stamp.encode(), cfg.for_path(target.shown), fixes)
+        key = self.key(raw + stamp.encode(), cfg.for_path(target.shown), fixes, variant)
         hit = self.get(key, target.shown)
         if hit is not None:
             return hit

@@ -281,11 +281,6 @@ def analyse_unit(index: ModuleIndex, unit: Unit, key: str, path: str, cfg: Confi
             elif k not in best or (f.digits_lost or 0) > (best[k].digits_lost or 0):
                 best[k] = f
     findings = sorted(best.values(), key=lambda f: (f.span.line, f.span.col, f.code))
-    if cfg.kappa_formula:
-        for f in findings:
-            number = f.origin.rpartition("#")[2]
-            site = out.site(int(number)) if number.isdigit() else None
-            f.kappa_formula = kappa_formula(site, cfg) if site is not None else None
     out.findings = problems + findings
     return out
 
@@ -367,9 +362,18 @@ def analyse_module(text: str, path: str, cfg: Config, cache: AnalysisCache | Non
     _apply_suppressions(report, index.comments)
     report.findings = [f for f in report.findings if SEVERITY_RANK[f.severity] >= SEVERITY_RANK[cfg.min_severity]]
     report.findings.sort(key=lambda f: (f.span.line, f.span.col, f.code))
+    if cfg.kappa_formula:  # only for the findings that are left: the formulas are costly
+        attach_formulas(out, cfg)
     out.site_misses = (cache.misses - misses0) if cache is not None else 0
     report.seconds = time.perf_counter() - t0
     return out
+
+
+def attach_formulas(ma: ModuleAnalysis, cfg: Config, chosen: list[Finding] | None = None) -> None:
+    """Give the module's findings, suppressed ones too (or only those `chosen`), their symbolic κ formula."""
+    for f in chosen if chosen is not None else [*ma.report.findings, *ma.report.suppressed]:
+        site = ma.site_of(f)
+        f.kappa_formula = kappa_formula(site, cfg) if site is not None else None
 
 
 _FORMULAS: Lru[str] = Lru(4096)

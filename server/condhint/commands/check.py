@@ -49,11 +49,11 @@ def run(args: argparse.Namespace) -> int:
     codes = selected_codes(args)
     narrowing = Narrowing(args)
     mark = args.mark_fixes and args.format == "text" and cfg.fixes
+    shown = args.min_severity or ("warning" if args.format in HUMAN_FORMATS else "info")
     result = check_paths(args.paths, cfg, fixes=(args.format in FIX_FORMATS or mark) and cfg.fixes,
-                         **run_settings(args))
+                         written=narrowing.written(codes, shown), **run_settings(args))
     keep_codes(result.reports, codes)  # before everything else: what is not selected is not reported at all
     notes = narrowing.apply(result.reports)
-    shown = args.min_severity or ("warning" if args.format in HUMAN_FORMATS else "info")
     options = {"min_severity": shown, "statistics": args.statistics and args.format != "text", "mark_fixes": mark}
     out = writer(args.format)(result.reports, options) + statistics_text(args, result.reports, shown)
     if args.output:

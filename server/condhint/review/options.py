@@ -7,6 +7,7 @@ from pathlib import Path
 from typing import Any
 
 from condhint.commands.common import UsageError
+from condhint.review.written import Written
 
 
 def _jobs(text: str) -> int:
@@ -85,6 +86,11 @@ class Narrowing:
                 self.changed = changed_since(args.diff_base, args.paths)
             except GitError as exc:
                 raise UsageError(str(exc)) from None
+
+    def written(self, codes: set[str], min_severity: str) -> Written:
+        """Which findings of a file the run will write: `codes` from `min_severity` on, narrowed like `apply`."""
+        baseline = Path(self.args.baseline) if self.accepted is not None else None
+        return Written(frozenset(codes), min_severity, baseline, self.accepted, self.changed)
 
     def apply(self, reports: list) -> list[str]:
         """Narrow the reports in place; returns notes for stderr."""
