@@ -12,7 +12,7 @@ import threading
 import time
 from collections import OrderedDict
 from dataclasses import dataclass, field
-from typing import Callable, Generic, TypeVar
+from typing import Callable, Generic, Hashable, TypeVar
 
 from condhint.budget import OverBudget, run_with_budget
 from condhint.config import Config
@@ -45,11 +45,11 @@ class Lru(Generic[V]):
 
     def __init__(self, capacity: int) -> None:
         self.capacity = capacity
-        self._data: OrderedDict[str, V] = OrderedDict()
+        self._data: OrderedDict[Hashable, V] = OrderedDict()
         self._lock = threading.Lock()
         self.hits = self.misses = 0
 
-    def get(self, key: str) -> V | None:
+    def get(self, key: Hashable) -> V | None:
         with self._lock:
             v = self._data.get(key)
             if v is not None:
@@ -59,7 +59,7 @@ class Lru(Generic[V]):
                 self.misses += 1
             return v
 
-    def put(self, key: str, value: V) -> None:
+    def put(self, key: Hashable, value: V) -> None:
         with self._lock:
             self._data[key] = value
             self._data.move_to_end(key)

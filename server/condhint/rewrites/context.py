@@ -4,8 +4,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from condhint.budget import OverBudget, run_with_budget
+from condhint.budget import OverBudget
 from condhint.expr import CONST, INPUT, Node
+from condhint.once import once_with_budget
 from condhint.rewrites import sym
 from condhint.rewrites.verify import Bench
 
@@ -42,7 +43,7 @@ class Context:
         for op in (opened, ()) if opened else ((),):
             try:
                 tr = self.translate(node, op)
-                simple = run_with_budget(_simplify, (tr.expr,), self.sympy_seconds)
+                simple = once_with_budget(_simplify, (tr.expr,), self.sympy_seconds)
                 ops = sym.count_ops(simple)
                 if ops < best_ops:
                     best, best_ops = sym.from_sympy(simple, tr), ops
