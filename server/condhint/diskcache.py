@@ -6,6 +6,11 @@ were searched and, when fixes or κ formulas are computed only for the findings 
 those (`review.written`). Value: the file report as JSON (findings with their fixes, suppressed findings, status).
 The path is not part of the key: equal files share an entry and get the path they are checked under.
 
+With fixes or κ formulas (JSON, SARIF), each formula is also kept by its expression (`get_formula`): a
+changed file's unchanged expressions do not derive theirs again. Only formulas are kept this way: a fix
+depends on the whole file (it is checked by re-analysing the patched text), so it is kept with the file's
+report only.
+
 Safe to share between processes and CI runs: an entry is written to a temporary file in the same directory
 and renamed into place, so a reader sees a whole entry or none; an unreadable entry is a miss and is removed.
 The cache keeps under a size cap by evicting the entries used longest ago (a hit refreshes an entry's time).
@@ -94,6 +99,7 @@ class DiskCache:
         self.root = Path(root) if root is not None else default_dir()
         self.max_bytes = max_bytes
         self.hits = self.misses = 0
+        self.formula_hits = 0
         self._written = 0  # bytes written since the last size check
 
     def key(self, raw: bytes, cfg: Config, fixes: bool = False, variant: str = "") -> str:
@@ -126,8 +132,31 @@ class DiskCache:
         return report
 
     def put(self, key: str, report: FileReport) -> None:
-        entry = self._entry(key)
-        data = json.dumps(report_to_json(report), ensure_ascii=False).encode("utf-8")
+        self._write(self._entry(key), json.dumps(report_to_json(report), ensure_ascii=False).encode("utf-8"))
+
+    # κ formulas by expression, for the files that changed: the costliest part of their JSON or SARIF report
+    def _formula_entry(self, key: str) -> Path:
+        return self._entry(hashlib.sha256(f"formula\0{code_digest()}\0{key}".encode()).hexdigest())
+
+    def get_formula(self, key: str) -> str | None:
+        """The κ formula stored under `engine.formula_key`'s `key`, or None."""
+        entry = self._formula_entry(key)
+        try:
+            text = json.loads(entry.read_bytes())["formula"]
+        except FileNotFoundError:
+            return None
+        except (OSError, ValueError, KeyError, TypeError):
+            _unlink(entry)
+            return None
+        if not isinstance(text, str) or not text:
+            return None
+        self.formula_hits += 1
+        return text
+
+    def put_formula(self, key: str, text: str) -> None:
+        self._write(self._formula_entry(key), json.dumps({"formula": text}, ensure_ascii=False).encode("utf-8"))
+
+    def _write(self, entry: Path, data: bytes) -> None:
         try:
             entry.parent.mkdir(parents=True, exist_ok=True)
             fd, tmp = tempfile.mkstemp(prefix=".tmp-", dir=entry.parent)

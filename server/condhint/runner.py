@@ -9,7 +9,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Iterable, Iterator
 
 from condhint.config import Config
-from condhint.engine import ModuleAnalysis, analyse_module, attach_formulas
+from condhint.engine import FormulaStore, ModuleAnalysis, analyse_module, attach_formulas
 from condhint.expr import Span
 from condhint.findings import FileReport
 from condhint.fixing import attach_fixes
@@ -82,12 +82,18 @@ def check_target(target: Target, cfg: Config, fixes: bool = False, cache: "DiskC
     """Analyse one file; an unreadable file yields a CH001 finding instead of an exception.
 
     With `fixes`, verified rewrites are attached to the findings (when the rewrites package is present).
-    With `cache`, an unchanged file's report comes from the on-disk cache. With `written`, fixes and κ
-    formulas are computed only for the findings the run will write.
+    With `cache`, an unchanged file's report comes from the on-disk cache (and a changed file's unchanged
+    expressions' κ formulas). With `written`, fixes and κ formulas are computed only for the findings the
+    run will write.
     """
-    if cache is not None:
-        variant = written.key(target.shown) if written is not None and (fixes or cfg.kappa_formula) else ""
-        return cache.check_target(target, cfg, fixes, partial(check_target, written=written), variant)
+    if cache is None:
+        return _checked(target, cfg, fixes, written)
+    variant = written.key(target.shown) if written is not None and (fixes or cfg.kappa_formula) else ""
+    return cache.check_target(target, cfg, fixes, partial(_checked, written=written, formulas=cache), variant)
+
+
+def _checked(target: Target, cfg: Config, fixes: bool, written: "Written | None" = None,
+             formulas: "FormulaStore | None" = None) -> FileReport:
     cfg = cfg.for_path(target.shown)
     if target.path.suffix == ".ipynb":
         from condhint.review.notebooks import check_notebook
@@ -100,15 +106,17 @@ def check_target(target: Target, cfg: Config, fixes: bool = False, cache: "DiskC
         rep.findings.append(not_analysed(target.shown, Span(1, 0, 1, 1), str(exc)))
         return rep
     analysis = analyse_module(src.text, target.shown, replace(cfg, kappa_formula=False))
-    _add_extras(analysis, cfg, fixes, written)  # inside the worker process, where the expression DAGs live
+    # inside the worker process, where the expression DAGs live
+    _add_extras(analysis, cfg, fixes, written, formulas)
     return analysis.report
 
 
-def _add_extras(ma: ModuleAnalysis, cfg: Config, fixes: bool, written: "Written | None") -> None:
+def _add_extras(ma: ModuleAnalysis, cfg: Config, fixes: bool, written: "Written | None",
+                formulas: "FormulaStore | None") -> None:
     """κ formulas and verified fixes, for the findings that will be written (all without `written`)."""
     chosen = written.among(ma.report) if written is not None else None
     if cfg.kappa_formula:
-        attach_formulas(ma, cfg, chosen)
+        attach_formulas(ma, cfg, chosen, formulas)
     if fixes:
         attach_fixes(ma, cfg, chosen=chosen)
 
