@@ -9,8 +9,8 @@ from pathlib import Path
 from condhint.commands.common import UsageError, add_code_options, add_config_options, config_from, selected_codes
 from condhint.findings import SEVERITY_RANK
 from condhint.outputs import WRITERS, writer
-from condhint.review.options import (Narrowing, add_review_options, keep_codes, print_notes, run_settings,
-                                     statistics_text)
+from condhint.review.options import Narrowing, add_review_options, print_notes, run_settings, statistics_text
+from condhint.review.written import keep_codes
 from condhint.runner import check_paths
 
 HUMAN_FORMATS = ("text", "markdown")  # these show warnings and errors unless --min-severity says otherwise

@@ -57,13 +57,6 @@ def run_settings(args: argparse.Namespace) -> dict[str, Any]:
     return {"jobs": args.jobs or default_jobs(), "shard": args.shard, "cache": cache}
 
 
-def keep_codes(reports: list, codes: set[str]) -> None:
-    """Keep, in place, only the findings (and suppressed findings) whose code is in `codes`."""
-    for rep in reports:
-        rep.findings = [f for f in rep.findings if f.code in codes]
-        rep.suppressed = [f for f in rep.suppressed if f.code in codes]
-
-
 class Narrowing:
     """--write-baseline, --baseline and --diff-base. Their inputs are read before the (long) analysis,
     so a bad revision or baseline fails at once with exit 2."""

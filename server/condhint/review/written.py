@@ -15,8 +15,17 @@ if TYPE_CHECKING:
     from condhint.review.diff_base import ChangedLines
 
 
+def keep_codes(reports: list[FileReport], codes: set[str]) -> None:
+    """Keep, in place, only the findings (and suppressed findings) whose code is in `codes`."""
+    for rep in reports:
+        rep.findings = [f for f in rep.findings if f.code in codes]
+        rep.suppressed = [f for f in rep.suppressed if f.code in codes]
+
+
 @dataclass(frozen=True)
 class Written:
+    """What a run writes: findings of `codes` from `min_severity` on, outside the baseline, on changed lines."""
+
     codes: frozenset[str]
     min_severity: str  # of the findings the writer shows (suppressed ones are all kept: SARIF shows them)
     baseline: Path | None = None
@@ -25,15 +34,14 @@ class Written:
 
     def among(self, report: FileReport) -> list[Finding]:
         """The findings and suppressed findings of `report` that the run will write."""
-        from condhint.review.options import keep_codes
-
         copy = FileReport(path=report.path, status=report.status)
         copy.findings, copy.suppressed = list(report.findings), list(report.suppressed)
         keep_codes([copy], set(self.codes))
         if self.baseline is not None and self.accepted is not None:
             from condhint.review.baseline import keep_new
 
-            keep_new([copy], self.baseline, Counter(self.accepted))  # fingerprints name the file: one is enough
+            # a fingerprint names its file, so counting it down within this file is what the whole run does
+            keep_new([copy], self.baseline, Counter(self.accepted))
         if self.changed is not None:
             from condhint.review.diff_base import keep_changed
 
