@@ -1,9 +1,15 @@
 """A content-addressed on-disk cache of file analyses, so `check` of an unchanged tree is nearly free.
 
 Key: sha256 over the file's bytes, condhint's version (and a digest of its own source, so a development
-checkout never reads entries written by other code), the resolved settings for the file and whether fixes
-were searched. Value: the file report as JSON (findings with their fixes, suppressed findings, status).
+checkout never reads entries written by other code), the resolved settings for the file, whether fixes
+were searched and, when fixes or κ formulas are computed only for the findings a run writes, what decides
+those (`review.written`). Value: the file report as JSON (findings with their fixes, suppressed findings, status).
 The path is not part of the key: equal files share an entry and get the path they are checked under.
+
+With fixes or κ formulas (JSON, SARIF), each formula is also kept by its expression (`get_formula`): a
+changed file's unchanged expressions do not derive theirs again. Only formulas are kept this way: a fix
+depends on the whole file (it is checked by re-analysing the patched text), so it is kept with the file's
+report only.
 
 Safe to share between processes and CI runs: an entry is written to a temporary file in the same directory
 and renamed into place, so a reader sees a whole entry or none; an unreadable entry is a miss and is removed.
@@ -93,11 +99,12 @@ class DiskCache:
         self.root = Path(root) if root is not None else default_dir()
         self.max_bytes = max_bytes
         self.hits = self.misses = 0
+        self.formula_hits = 0
         self._written = 0  # bytes written since the last size check
 
-    def key(self, raw: bytes, cfg: Config, fixes: bool = False) -> str:
+    def key(self, raw: bytes, cfg: Config, fixes: bool = False, variant: str = "") -> str:
         h = hashlib.sha256()
-        for part in (code_digest(), repr(cfg), str(bool(fixes))):
+        for part in (code_digest(), repr(cfg), str(bool(fixes)), variant):
             h.update(part.encode() + b"\0")
         h.update(raw)
         return h.hexdigest()
@@ -125,8 +132,31 @@ class DiskCache:
         return report
 
     def put(self, key: str, report: FileReport) -> None:
-        entry = self._entry(key)
-        data = json.dumps(report_to_json(report), ensure_ascii=False).encode("utf-8")
+        self._write(self._entry(key), json.dumps(report_to_json(report), ensure_ascii=False).encode("utf-8"))
+
+    # κ formulas by expression, for the files that changed: the costliest part of their JSON or SARIF report
+    def _formula_entry(self, key: str) -> Path:
+        return self._entry(hashlib.sha256(f"formula\0{code_digest()}\0{key}".encode()).hexdigest())
+
+    def get_formula(self, key: str) -> str | None:
+        """The κ formula stored under `engine.formula_key`'s `key`, or None."""
+        entry = self._formula_entry(key)
+        try:
+            text = json.loads(entry.read_bytes())["formula"]
+        except FileNotFoundError:
+            return None
+        except (OSError, ValueError, KeyError, TypeError):
+            _unlink(entry)
+            return None
+        if not isinstance(text, str) or not text:
+            return None
+        self.formula_hits += 1
+        return text
+
+    def put_formula(self, key: str, text: str) -> None:
+        self._write(self._formula_entry(key), json.dumps({"formula": text}, ensure_ascii=False).encode("utf-8"))
+
+    def _write(self, entry: Path, data: bytes) -> None:
         try:
             entry.parent.mkdir(parents=True, exist_ok=True)
             fd, tmp = tempfile.mkstemp(prefix=".tmp-", dir=entry.parent)
@@ -177,15 +207,16 @@ class DiskCache:
             _unlink(p)
 
     def check_target(self, target: Any, cfg: Config, fixes: bool,
-                     check: Callable[[Any, Config, bool], FileReport]) -> FileReport:
-        """`check(target, cfg, fixes)`'s report, from the cache when the file's bytes were seen before."""
+                     check: Callable[[Any, Config, bool], FileReport], variant: str = "") -> FileReport:
+        """`check(target, cfg, fixes)`'s report, from the cache when the file's bytes were seen before
+        (`variant`: anything else the report depends on)."""
         try:
             raw = target.path.read_bytes()
         except OSError:
             return check(target, cfg, fixes)  # reported as unreadable by `check`
         # inlined calls into the package's other files make the report depend on them (issue 15)
         stamp = dependency_stamp(raw.decode("utf-8", "replace"), str(target.path))
-        key = self.key(raw + stamp.encode(), cfg.for_path(target.shown), fixes)
+        key = self.key(raw + stamp.encode(), cfg.for_path(target.shown), fixes, variant)
         hit = self.get(key, target.shown)
         if hit is not None:
             return hit

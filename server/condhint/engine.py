@@ -12,11 +12,11 @@ import threading
 import time
 from collections import OrderedDict
 from dataclasses import dataclass, field
-from typing import Callable, Generic, TypeVar
+from typing import Callable, Generic, Hashable, Protocol, TypeVar
 
 from condhint.budget import OverBudget, run_with_budget
 from condhint.config import Config
-from condhint.expr import INPUT, Node, Span, topological
+from condhint.expr import CONST, INPUT, Node, Span, topological
 from condhint.findings import SEVERITY_RANK, FileReport, Finding
 from condhint.loop_findings import loop_findings
 from condhint.numeric.analysis import Analysis
@@ -45,11 +45,11 @@ class Lru(Generic[V]):
 
     def __init__(self, capacity: int) -> None:
         self.capacity = capacity
-        self._data: OrderedDict[str, V] = OrderedDict()
+        self._data: OrderedDict[Hashable, V] = OrderedDict()
         self._lock = threading.Lock()
         self.hits = self.misses = 0
 
-    def get(self, key: str) -> V | None:
+    def get(self, key: Hashable) -> V | None:
         with self._lock:
             v = self._data.get(key)
             if v is not None:
@@ -59,7 +59,7 @@ class Lru(Generic[V]):
                 self.misses += 1
             return v
 
-    def put(self, key: str, value: V) -> None:
+    def put(self, key: Hashable, value: V) -> None:
         with self._lock:
             self._data[key] = value
             self._data.move_to_end(key)
@@ -281,11 +281,6 @@ def analyse_unit(index: ModuleIndex, unit: Unit, key: str, path: str, cfg: Confi
             elif k not in best or (f.digits_lost or 0) > (best[k].digits_lost or 0):
                 best[k] = f
     findings = sorted(best.values(), key=lambda f: (f.span.line, f.span.col, f.code))
-    if cfg.kappa_formula:
-        for f in findings:
-            number = f.origin.rpartition("#")[2]
-            site = out.site(int(number)) if number.isdigit() else None
-            f.kappa_formula = kappa_formula(site, cfg) if site is not None else None
     out.findings = problems + findings
     return out
 
@@ -367,29 +362,57 @@ def analyse_module(text: str, path: str, cfg: Config, cache: AnalysisCache | Non
     _apply_suppressions(report, index.comments)
     report.findings = [f for f in report.findings if SEVERITY_RANK[f.severity] >= SEVERITY_RANK[cfg.min_severity]]
     report.findings.sort(key=lambda f: (f.span.line, f.span.col, f.code))
+    if cfg.kappa_formula:  # only for the findings that are left: the formulas are costly
+        attach_formulas(out, cfg)
     out.site_misses = (cache.misses - misses0) if cache is not None else 0
     report.seconds = time.perf_counter() - t0
     return out
+
+
+def attach_formulas(ma: ModuleAnalysis, cfg: Config, chosen: list[Finding] | None = None,
+                    store: FormulaStore | None = None) -> None:
+    """Give the module's findings, suppressed ones too (or only those `chosen`), their symbolic κ formula."""
+    for f in chosen if chosen is not None else [*ma.report.findings, *ma.report.suppressed]:
+        site = ma.site_of(f)
+        f.kappa_formula = kappa_formula(site, cfg, store=store) if site is not None else None
 
 
 _FORMULAS: Lru[str] = Lru(4096)
 _NO_FORMULA = ""
 
 
-def kappa_formula(site: Site, cfg: Config, root: Node | None = None) -> str | None:
+class FormulaStore(Protocol):
+    """Formulas kept between runs (`diskcache.DiskCache`), by `formula_key`."""
+
+    def get_formula(self, key: str) -> str | None: ...
+
+    def put_formula(self, key: str, text: str) -> None: ...
+
+
+def formula_key(root: Node, positive: set[str]) -> str:
+    """All a κ formula depends on: the expression (with the values of constants that have no exact text) and
+    which inputs are positive."""
+    inexact = [repr(n.value) for n in topological(root) if n.kind == CONST and not n.exact]
+    return f"{root.key()}|{inexact}|{sorted(positive)}"
+
+
+def kappa_formula(site: Site, cfg: Config, root: Node | None = None, store: FormulaStore | None = None
+                  ) -> str | None:
     """The symbolic κ formula of a site's expression, or None when sympy cannot give it within the budget."""
     root = root or site.root
     positive = {k for k, r in site.ranges.items() if r.interval.low >= 0}
-    key = f"{root.key()}|{sorted(positive)}"
+    key = formula_key(root, positive)
     hit = _FORMULAS.get(key)
     if hit is not None:
         return hit or None
-    text: str | None = None
-    if len(topological(root)) <= 60:
+    text = store.get_formula(key) if store is not None else None
+    if text is None and len(topological(root)) <= 60:
         try:
             text = run_with_budget(kappa_formula_text, (root, positive), cfg.formula_budget)
         except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, ZeroDivisionError):
             text = None
+        if text and store is not None:  # a formula that ran out of budget may come another time: not kept
+            store.put_formula(key, text)
     _FORMULAS.put(key, text or _NO_FORMULA)
     return text
 

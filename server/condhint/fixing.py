@@ -59,13 +59,15 @@ def fixes_for(finding: Finding, ma: ModuleAnalysis, cfg: Config, cache: Analysis
     return package.fixes_for(subject, cfg) if seconds is None else package.fixes_for(subject, cfg, seconds)
 
 
-def attach_fixes(ma: ModuleAnalysis, cfg: Config, cache: AnalysisCache | None = None) -> None:
-    """Give every fixable finding of the module its verified fixes."""
+def attach_fixes(ma: ModuleAnalysis, cfg: Config, cache: AnalysisCache | None = None,
+                 chosen: list[Finding] | None = None) -> None:
+    """Give every fixable finding of the module (or only those `chosen`) its verified fixes."""
     package = rewrites()
     if package is None:
         return
+    wanted = {id(f) for f in chosen} if chosen is not None else None
     for f in ma.report.findings:
-        if f.category in package.FIXABLE:
+        if f.category in package.FIXABLE and (wanted is None or id(f) in wanted):
             f.fixes = fixes_for(f, ma, cfg, cache)
             if f.fixes:
                 f.message = with_fix_note(f.message)

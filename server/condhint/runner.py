@@ -3,12 +3,13 @@ from __future__ import annotations
 
 import fnmatch
 import os
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
+from functools import partial
 from pathlib import Path
 from typing import TYPE_CHECKING, Iterable, Iterator
 
 from condhint.config import Config
-from condhint.engine import analyse_module
+from condhint.engine import FormulaStore, ModuleAnalysis, analyse_module, attach_formulas
 from condhint.expr import Span
 from condhint.findings import FileReport
 from condhint.fixing import attach_fixes
@@ -18,6 +19,7 @@ from condhint.sourcefile import UnreadableFile, read_source
 if TYPE_CHECKING:
     from condhint.diskcache import DiskCache
     from condhint.review.shard import Shard
+    from condhint.review.written import Written
 
 SKIP_DIRS = {"__pycache__", "node_modules", "site-packages", "venv", "env", "build", "dist"}
 
@@ -75,14 +77,23 @@ def path_order(shown: str) -> tuple:
     return tuple((1, p) for p in parts[:-1]) + ((0, parts[-1]),)
 
 
-def check_target(target: Target, cfg: Config, fixes: bool = False, cache: "DiskCache | None" = None) -> FileReport:
+def check_target(target: Target, cfg: Config, fixes: bool = False, cache: "DiskCache | None" = None,
+                 written: "Written | None" = None) -> FileReport:
     """Analyse one file; an unreadable file yields a CH001 finding instead of an exception.
 
     With `fixes`, verified rewrites are attached to the findings (when the rewrites package is present).
-    With `cache`, an unchanged file's report comes from the on-disk cache.
+    With `cache`, an unchanged file's report comes from the on-disk cache (and a changed file's unchanged
+    expressions' κ formulas). With `written`, fixes and κ formulas are computed only for the findings the
+    run will write.
     """
-    if cache is not None:
-        return cache.check_target(target, cfg, fixes, check_target)
+    if cache is None:
+        return _checked(target, cfg, fixes, written)
+    variant = written.key(target.shown) if written is not None and (fixes or cfg.kappa_formula) else ""
+    return cache.check_target(target, cfg, fixes, partial(_checked, written=written, formulas=cache), variant)
+
+
+def _checked(target: Target, cfg: Config, fixes: bool, written: "Written | None" = None,
+             formulas: "FormulaStore | None" = None) -> FileReport:
     cfg = cfg.for_path(target.shown)
     if target.path.suffix == ".ipynb":
         from condhint.review.notebooks import check_notebook
@@ -94,13 +105,23 @@ def check_target(target: Target, cfg: Config, fixes: bool = False, cache: "DiskC
         rep = FileReport(target.shown, "error", message=str(exc))
         rep.findings.append(not_analysed(target.shown, Span(1, 0, 1, 1), str(exc)))
         return rep
-    analysis = analyse_module(src.text, target.shown, cfg)
-    if fixes:
-        attach_fixes(analysis, cfg)  # inside the worker process, where the expression DAGs live
+    analysis = analyse_module(src.text, target.shown, replace(cfg, kappa_formula=False))
+    # inside the worker process, where the expression DAGs live
+    _add_extras(analysis, cfg, fixes, written, formulas)
     return analysis.report
 
 
-def _check_in_worker(job: tuple[Target, Config, bool, "DiskCache | None"]) -> FileReport:
+def _add_extras(ma: ModuleAnalysis, cfg: Config, fixes: bool, written: "Written | None",
+                formulas: "FormulaStore | None") -> None:
+    """κ formulas and verified fixes, for the findings that will be written (all without `written`)."""
+    chosen = written.among(ma.report) if written is not None else None
+    if cfg.kappa_formula:
+        attach_formulas(ma, cfg, chosen, formulas)
+    if fixes:
+        attach_fixes(ma, cfg, chosen=chosen)
+
+
+def _check_in_worker(job: tuple[Target, Config, bool, "DiskCache | None", "Written | None"]) -> FileReport:
     return check_target(*job)
 
 
@@ -114,9 +135,10 @@ class RunResult:
 
 
 def check_paths(paths: list[str], cfg: Config, jobs: int = 1, shard: "Shard | None" = None,
-                fixes: bool = False, show_progress: bool | None = None, cache: "DiskCache | None" = None
-                ) -> RunResult:
-    """Check files and trees: `jobs` worker processes, only `shard`'s part of the files, in path order."""
+                fixes: bool = False, show_progress: bool | None = None, cache: "DiskCache | None" = None,
+                written: "Written | None" = None) -> RunResult:
+    """Check files and trees: `jobs` worker processes, only `shard`'s part of the files, in path order;
+    fixes and κ formulas only for the findings `written` (all without it)."""
     from condhint.review.parallel import map_ordered
     from condhint.review.progress import progress
 
@@ -127,8 +149,8 @@ def check_paths(paths: list[str], cfg: Config, jobs: int = 1, shard: "Shard | No
         if jobs <= 1 or len(targets) <= 1:
             reports = []
             for t in targets:
-                reports.append(check_target(t, cfg, fixes, cache))
+                reports.append(check_target(t, cfg, fixes, cache, written))
                 advance()
         else:
-            reports = map_ordered(_check_in_worker, [(t, cfg, fixes, cache) for t in targets], jobs, lambda i: advance())
+            reports = map_ordered(_check_in_worker, [(t, cfg, fixes, cache, written) for t in targets], jobs, lambda i: advance())
     return RunResult(reports)

@@ -6,6 +6,7 @@ evaluated. Work that can take long runs in `budget.run_with_budget`.
 from __future__ import annotations
 
 import re
+from functools import lru_cache
 from typing import Any
 
 import sympy as sp
@@ -79,19 +80,24 @@ SIMPLIFY_UP_TO = 160  # characters: `simplify` shortens small terms; on long one
 
 
 def kappa_expression(expr: sp.Expr, symbols: dict[str, sp.Symbol]) -> sp.Expr:
-    """κ = Σᵢ |xᵢ ∂f/∂xᵢ / f|, each term simplified: cancelled and with common factors pulled out, and, when
-    that is short enough to read, by `simplify` if it comes out shorter still."""
+    """κ = Σᵢ |xᵢ ∂f/∂xᵢ / f|, each term cancelled and in its shortest form (`_shortest`)."""
     terms = []
     for s in symbols.values():
-        q = sp.cancel(s * sp.diff(expr, s) / expr)
-        t = sp.factor_terms(q)
-        if len(sp.sstr(t)) <= SIMPLIFY_UP_TO:
-            # the shortest of: common factors pulled out, `simplify`, and radicals out of the denominator then
-            # factored (sqrt(n + 1) - sqrt(n) gives -sqrt(n)/(2*sqrt(n + 1)), which `simplify` alone misses)
-            t = min((t, sp.simplify(q), sp.factor(sp.radsimp(q))), key=lambda e: len(sp.sstr(e)))
+        t = _shortest(sp.cancel(s * sp.diff(expr, s) / expr))
         if t != 0:
             terms.append(sp.Abs(t))
     return sp.Add(*terms) if terms else sp.Integer(0)
+
+
+@lru_cache(maxsize=4096)  # equal terms recur across a package's formulas; sympy expressions hash by value
+def _shortest(q: sp.Expr) -> sp.Expr:
+    """One term of κ in its shortest form: common factors pulled out and, when that is short enough to read,
+    `simplify`, or radicals out of the denominator then factored (sqrt(n + 1) - sqrt(n) gives
+    -sqrt(n)/(2*sqrt(n + 1)), which `simplify` alone misses), whichever prints shortest."""
+    t = sp.factor_terms(q)
+    if len(sp.sstr(t)) <= SIMPLIFY_UP_TO:
+        t = min((t, sp.simplify(q), sp.factor(sp.radsimp(q))), key=lambda e: len(sp.sstr(e)))
+    return t
 
 
 def kappa_formula_text(root: Node, positive: set[str]) -> str:

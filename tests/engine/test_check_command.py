@@ -98,8 +98,8 @@ def test_the_kappa_formula_is_derived_only_for_formats_that_show_it(tmp_path: Pa
 
     calls: list[str] = []
     real = engine.kappa_formula
-    monkeypatch.setattr(engine, "kappa_formula", lambda site, cfg, root=None: calls.append(site.root.text)
-                        or real(site, cfg, root))
+    monkeypatch.setattr(engine, "kappa_formula", lambda site, cfg, root=None, **kw: calls.append(site.root.text)
+                        or real(site, cfg, root, **kw))
     (tmp_path / "a.py").write_text(CANCEL)
     code, out, _ = run(capsys, "check", "--format", fmt, str(tmp_path / "a.py"))
     assert code == 1 and "np.exp(x) - 1" in out

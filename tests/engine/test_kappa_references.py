@@ -154,3 +154,20 @@ def test_the_displayed_kappa_formula_is_simplified_and_equal_to_sympys_own(expr,
     difference = written(x) - abs(x * sympy.diff(sym, x) / sym)
     assert sympy.simplify(difference) == 0 or all(
         abs(float(difference.evalf(30, subs={x: v}))) < 1e-20 for v in (1.5, 10.0, 1e3, 1e6))
+
+
+def test_a_term_shared_by_two_formulas_is_simplified_once_and_reads_the_same():
+    # κ of sqrt(x + 1) - sqrt(x) w.r.t. x is the term sqrt(x)/(2*sqrt(x + 1)); the second function has it too.
+    from condhint.symbolic import _shortest, kappa_formula_text
+
+    src = ("import math\ndef f(x):  # condhint: 1 <= x <= 1e6\n    return math.sqrt(x + 1) - math.sqrt(x)\n"
+           "def g(x, y):  # condhint: 1 <= x <= 1e6; 1 <= y <= 2\n"
+           "    return (math.sqrt(x + 1) - math.sqrt(x)) * y\n")
+    f_site, g_site = analyse_module(src, "t.py", Config(), cache=None).sites
+    _shortest.cache_clear()
+    alone = kappa_formula_text(g_site.root, {"x", "y"})
+    _shortest.cache_clear()
+    kappa_formula_text(f_site.root, {"x"})
+    hits = _shortest.cache_info().hits
+    assert kappa_formula_text(g_site.root, {"x", "y"}) == alone == "sqrt(x)/(2*sqrt(x + 1)) + 1"
+    assert _shortest.cache_info().hits > hits

@@ -181,3 +181,37 @@ def test_check_command_cache_dir_gives_the_same_report(tmp_path, capsys):
         outputs.append(doc["findings"])
     assert outputs[0] == outputs[1] and outputs[0]
     assert any(cache.rglob("*")), "the cache directory holds entries"
+
+
+def test_a_changed_file_takes_its_unchanged_formulas_from_the_cache(tmp_path: Path, monkeypatch) -> None:
+    from condhint import engine
+
+    text = (DEMO / "growth.py").read_text(encoding="utf-8")
+    p = tmp_path / "growth.py"
+    p.write_text(text, encoding="utf-8")
+    cache = DiskCache(tmp_path / "cache")
+    monkeypatch.setattr(engine, "_FORMULAS", engine.Lru(4096))  # nothing remembered in this process yet
+    first = check_target(Target(p, "growth.py"), Config(), cache=cache)
+    formulas = [f.kappa_formula for f in first.findings]
+    assert any(formulas) and cache.formula_hits == 0
+    p.write_text(text + "\n# edited\n", encoding="utf-8")
+    monkeypatch.setattr(engine, "_FORMULAS", engine.Lru(4096))
+    second = check_target(Target(p, "growth.py"), Config(), cache=cache)
+    assert cache.hits == 0 and cache.formula_hits > 0  # the file's report is new, its formulas are not
+    assert [f.kappa_formula for f in second.findings] == formulas
+    uncached = check_target(Target(p, "growth.py"), Config())
+    assert [f.kappa_formula for f in uncached.findings] == formulas
+
+
+def test_formula_key_tells_apart_what_the_formula_depends_on() -> None:
+    from condhint.engine import formula_key
+    from condhint.expr import CONST, INPUT, Node
+
+    x = Node(INPUT, name="x")
+
+    def scaled(value: float) -> Node:  # constants without exact text are known by their value only
+        return Node("mul", (Node(CONST, value=value), x))
+
+    assert formula_key(scaled(0.5), {"x"}) != formula_key(scaled(0.25), {"x"})
+    assert formula_key(scaled(0.5), {"x"}) != formula_key(scaled(0.5), set())
+    assert formula_key(scaled(0.5), {"x"}) == formula_key(scaled(0.5), {"x"})

@@ -9,8 +9,8 @@ from pathlib import Path
 from condhint.commands.common import UsageError, add_code_options, add_config_options, config_from, selected_codes
 from condhint.findings import SEVERITY_RANK
 from condhint.outputs import WRITERS, writer
-from condhint.review.options import (Narrowing, add_review_options, keep_codes, print_notes, run_settings,
-                                     statistics_text)
+from condhint.review.options import Narrowing, add_review_options, print_notes, run_settings, statistics_text
+from condhint.review.written import keep_codes
 from condhint.runner import check_paths
 
 HUMAN_FORMATS = ("text", "markdown")  # these show warnings and errors unless --min-severity says otherwise
@@ -49,11 +49,11 @@ def run(args: argparse.Namespace) -> int:
     codes = selected_codes(args)
     narrowing = Narrowing(args)
     mark = args.mark_fixes and args.format == "text" and cfg.fixes
+    shown = args.min_severity or ("warning" if args.format in HUMAN_FORMATS else "info")
     result = check_paths(args.paths, cfg, fixes=(args.format in FIX_FORMATS or mark) and cfg.fixes,
-                         **run_settings(args))
+                         written=narrowing.written(codes, shown), **run_settings(args))
     keep_codes(result.reports, codes)  # before everything else: what is not selected is not reported at all
     notes = narrowing.apply(result.reports)
-    shown = args.min_severity or ("warning" if args.format in HUMAN_FORMATS else "info")
     options = {"min_severity": shown, "statistics": args.statistics and args.format != "text", "mark_fixes": mark}
     out = writer(args.format)(result.reports, options) + statistics_text(args, result.reports, shown)
     if args.output:

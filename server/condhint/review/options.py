@@ -7,6 +7,7 @@ from pathlib import Path
 from typing import Any
 
 from condhint.commands.common import UsageError
+from condhint.review.written import Written
 
 
 def _jobs(text: str) -> int:
@@ -56,13 +57,6 @@ def run_settings(args: argparse.Namespace) -> dict[str, Any]:
     return {"jobs": args.jobs or default_jobs(), "shard": args.shard, "cache": cache}
 
 
-def keep_codes(reports: list, codes: set[str]) -> None:
-    """Keep, in place, only the findings (and suppressed findings) whose code is in `codes`."""
-    for rep in reports:
-        rep.findings = [f for f in rep.findings if f.code in codes]
-        rep.suppressed = [f for f in rep.suppressed if f.code in codes]
-
-
 class Narrowing:
     """--write-baseline, --baseline and --diff-base. Their inputs are read before the (long) analysis,
     so a bad revision or baseline fails at once with exit 2."""
@@ -85,6 +79,11 @@ class Narrowing:
                 self.changed = changed_since(args.diff_base, args.paths)
             except GitError as exc:
                 raise UsageError(str(exc)) from None
+
+    def written(self, codes: set[str], min_severity: str) -> Written:
+        """Which findings of a file the run will write: `codes` from `min_severity` on, narrowed like `apply`."""
+        baseline = Path(self.args.baseline) if self.accepted is not None else None
+        return Written(frozenset(codes), min_severity, baseline, self.accepted, self.changed)
 
     def apply(self, reports: list) -> list[str]:
         """Narrow the reports in place; returns notes for stderr."""

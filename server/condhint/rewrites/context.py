@@ -4,8 +4,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from condhint.budget import OverBudget, run_with_budget
+from condhint.budget import OverBudget
 from condhint.expr import CONST, INPUT, Node
+from condhint.once import once_with_budget
 from condhint.rewrites import sym
 from condhint.rewrites.verify import Bench
 
@@ -47,7 +48,7 @@ class Context:
             written = _operations(node, self.closed(op))
             try:
                 tr = self.translate(node, op)
-                simple = run_with_budget(_simplify, (tr.expr,), self.sympy_seconds)
+                simple = once_with_budget(_simplify, (tr.expr,), self.sympy_seconds)
                 ops = sym.count_ops(simple)
                 if ops < written and (best is node or ops < best_ops):
                     best, best_ops = sym.from_sympy(simple, tr), ops

@@ -19,13 +19,14 @@ import numpy as np
 import sympy as sp
 from sympy.codegen import rewriting as sr
 
-from condhint.budget import OverBudget, run_with_budget
+from condhint.budget import OverBudget
 from condhint.expr import CONST, INPUT, Node, topological
 from condhint.messages import num
 from condhint.numeric.backends import F64_BACKEND
 from condhint.numeric.evaluate import BudgetExceeded, Deadline, forward
 from condhint.numeric.formats import Format
 from condhint.numeric.reference import reference_values
+from condhint.once import once_with_budget
 from condhint.rewrites import dag, sym
 from condhint.rewrites.context import Context
 
@@ -60,7 +61,7 @@ def transformed(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Foun
         if _late(deadline):
             return
         try:
-            out = run_with_budget(_transform, (name, tr.expr), min(ctx.sympy_seconds, _left(deadline)))
+            out = once_with_budget(_transform, (name, tr.expr), min(ctx.sympy_seconds, _left(deadline)))
         except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, AttributeError):
             continue
         if out in seen:
@@ -156,7 +157,7 @@ def series(target: Node, ctx: Context, deadline: Deadline) -> Iterator[Found]:
     except BudgetExceeded:
         return
     try:
-        every = run_with_budget(_series_terms, (tr.expr, var, MAX_TERMS), min(1.0, _left(deadline)))
+        every = once_with_budget(_series_terms, (tr.expr, var, MAX_TERMS), min(1.0, _left(deadline)))
     except (OverBudget, RuntimeError, ValueError, TypeError, sp.PoleError, NotImplementedError):
         return
     if not every:

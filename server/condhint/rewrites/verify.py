@@ -21,7 +21,7 @@ from typing import Any
 import mpmath
 import numpy as np
 
-from condhint.budget import OverBudget, run_with_budget
+from condhint.budget import OverBudget
 from condhint.config import Config
 from condhint.expr import INPUT, SELECT, Node, topological
 from condhint.numeric.analysis import digits_of, metrics, rounds
@@ -32,6 +32,7 @@ from condhint.numeric.formats import Format
 from condhint.numeric.operations import SATURATED
 from condhint.numeric.reference import reference_values
 from condhint.numeric.sampling import sample
+from condhint.once import once_with_budget
 from condhint.rewrites import sym
 from condhint.site import Site
 
@@ -286,6 +287,6 @@ def prove(target: Node, replacement: Node, bench: Bench, seconds: float) -> bool
     try:
         a = sym.to_sympy(target, positive=pos, exact_forms=True).expr
         b = sym.to_sympy(replacement, positive=pos, exact_forms=True).expr
-        return bool(run_with_budget(sym.is_zero, (a - b,), seconds))
+        return bool(once_with_budget(sym.is_zero, (a - b,), seconds))
     except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, ZeroDivisionError, AttributeError):
         return False
