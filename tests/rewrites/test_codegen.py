@@ -14,7 +14,7 @@ from condhint.engine import analyse_module
 from condhint.rewrites import apply_fixes
 from condhint.rewrites.codegen import Unspellable
 from condhint.rewrites.rules import BY_ID
-from tests.rewrites.support import analysed, best_fix, context_for, fixable, site_with
+from tests.rewrites.support import analysed, best_fix, context_for, fixable, fixes_of, site_with
 
 EXPM1 = "{imp}\ndef f(x):  # condhint: 1e-12 <= x <= 1e-3\n    return {e}(x) - 1\n"
 
@@ -158,3 +158,20 @@ def test_a_nest_of_a_variadic_function_is_one_call_only_where_the_function_takes
     src = f"{imp}\ndef f(x, y, z):  # condhint: 1e-200 <= x <= 1e200, 1e-200 <= y <= 1e200, 1e-200 <= z <= 1e200\n" \
           f"    return {fn}(x*x + y*y + z*z)\n"
     assert best_fix(src).replacement == replacement
+
+
+# scipy.special's functions take arrays, like numpy's: a choice in code that calls them is numpy's `where`, never
+# `a if c else b` (which raises on an array), and without numpy in the file it is not written at all.
+ERF_SUM = ("def mixed(x, c):  # condhint: -6 <= x <= 6, 0.5 <= c <= 1\n"
+           "    return sc.erf(x + c) + sc.erf(c - x)\n")
+
+
+def test_a_choice_in_scipy_special_code_is_numpys_where():
+    fix = best_fix("import numpy as np\nimport scipy.special as sc\n\n\n" + ERF_SUM)
+    assert fix.replacement == ("np.where(x + c > 0, sc.erfc(x - c) - sc.erfc(x + c), "
+                               "sc.erfc(-(x + c)) - sc.erfc(c - x))")
+
+
+def test_no_python_choice_is_written_in_scipy_special_code():
+    finding, fixes, _ = fixes_of("import scipy.special as sc\n\n\n" + ERF_SUM)
+    assert finding.code == "CH101" and all(" if " not in f.replacement for f in fixes)

@@ -189,7 +189,8 @@ class Spelling:
 
     @property
     def array_style(self) -> bool:
-        return self.module == "numpy"
+        """numpy's and scipy.special's functions take arrays: choices there are `where`, never `if`."""
+        return self.module in ("numpy", "scipy.special")
 
     def _need(self, statement: str) -> None:
         if statement not in self.imports:
@@ -200,8 +201,8 @@ class Spelling:
         builtin = generated.get("builtins")
         if builtin is not None and not (self.array_style and "numpy" in generated):
             return builtin
-        # numpy code may pass arrays, which `math` cannot take: only other modules fall back to numpy or math
-        fallback = () if self.narrow or self.module == "numpy" else ("numpy", "math")
+        # array code may pass arrays, which `math` cannot take: only scalar code falls back to math
+        fallback = () if self.narrow else ("numpy",) if self.array_style else ("numpy", "math")
         for mod in dict.fromkeys((self.module, *self.also, *fallback)):
             attr = generated.get(mod)
             if attr is None:
