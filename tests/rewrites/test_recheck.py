@@ -1,4 +1,5 @@
-"""The re-analysis that confirms a fix works on the definition holding the finding, with the rest blanked."""
+"""The re-analysis that confirms a fix works on the definition holding the finding, with the rest blanked; a fix of
+a shared intermediate lands on its binding."""
 from __future__ import annotations
 
 import ast
@@ -37,3 +38,33 @@ def test_a_fix_is_confirmed_in_a_module_ending_in_a_decorated_definition():
     finding, fixes, _ = fixes_of(DECORATED_AFTER)
     assert finding.expression == "math.exp(x) - 1"
     assert fixes and fixes[0].replacement == "math.expm1(x)"
+
+
+# A loss in an intermediate that the code uses more than once is reported at its binding, and the fix rewrites
+# the binding, so every use gets the accurate value (1 − cos t = 2 sin²(t/2), NIST DLMF ch. 4, half-angle formula).
+SAGITTA = '''import math
+
+
+def sagitta(r, t):  # condhint: 1 <= r <= 10, 1e-8 <= t <= 1e-3
+    c = 1 - math.cos(t)
+    depth = r * c
+    area = r * r * c / t
+    return depth + area
+'''
+
+
+def test_a_shared_intermediate_is_fixed_at_its_binding():
+    from condhint.config import Config
+    from condhint.fixing import attach_fixes
+    from condhint.rewrites import apply_fixes
+
+    ma = analysed(SAGITTA)
+    attach_fixes(ma, Config())
+    flagged = [f for f in ma.report.findings if f.severity in ("warning", "error")]
+    assert [(f.span.line, f.expression) for f in flagged] == [(5, "1 - math.cos(t)")]
+    (fix, *_) = flagged[0].fixes
+    assert (fix.span.line, fix.replacement) == (5, "2 * math.sin(t / 2) ** 2")
+    fixed = apply_fixes(SAGITTA, [fix])
+    assert "    c = 2 * math.sin(t / 2) ** 2\n    depth = r * c\n    area = r * r * c / t\n" in fixed
+    again = analysed(fixed)
+    assert not [f for f in again.report.findings if f.severity in ("warning", "error")]
