@@ -17,8 +17,9 @@ from typing import Any, Callable, Iterator
 import numpy as np
 import sympy as sp
 
-from condhint.budget import OverBudget, run_with_budget
+from condhint.budget import OverBudget
 from condhint.expr import CONST, SELECT, Node, topological
+from condhint.once import once_with_budget
 from condhint.rewrites import codegen, dag, sym
 from condhint.rewrites.context import Context
 
@@ -219,7 +220,7 @@ def candidates(node: Node, ctx: Context, kind: str) -> list[Node]:
     for op in ((), opened) if opened else ((),):
         try:
             tr = ctx.translate(node, op)
-            forms = run_with_budget(_generated, (kind, tr.expr), SYMPY_SECONDS)
+            forms = once_with_budget(_generated, (kind, tr.expr), SYMPY_SECONDS)
         except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, AttributeError):
             continue
         for form in forms:
