@@ -200,7 +200,7 @@ def test_every_spelling_resolves_back_to_its_record(fid: str, module: str, name:
 @pytest.mark.parametrize("op", [op for op in RECORDS if op.generated], ids=ids)
 def test_generated_spellings_parse_compute_the_operation_and_read_back(op: Operation) -> None:
     # reference: the generated call, evaluated by the real module, equals the record's binary64 evaluation
-    tree = ast.parse("import math\nimport numpy as np\n")
+    tree = ast.parse("import math\nimport numpy as np\nimport scipy.special as sc\n")
     for module, name in op.generated.items():
         fn = getattr(MODULES[module], name)
         for p in points(op)[:5]:
