@@ -554,3 +554,19 @@ def test_rule_does_not_fire(rule, source, text, why):
         assert not ev.ok and ev.after > ev.before - 1.0, ev
     # and no finding there gets a fix from this rule
     assert all(fx.rule != rule for f in fixable(ma) for fx in fixes_for(f, ma, Config()))
+
+
+def test_log1p_far_from_zero_gets_a_branch():
+    # log(cos t) = log1p(−2 sin²(t/2)) (NIST DLMF ch. 4, half-angle formula), but log1p(d) with d near −1 loses
+    # what log(cos t) keeps: at t = 1.5707963 (cos t ≈ 3e−8) 6.5 digits, measured here against mpmath. On the
+    # assumed range the samples miss that neighbourhood, so the plain form must not be offered there.
+    _, fixes, _ = fixes_of("import numpy as np\n\n\ndef integrand(t):\n    return np.log(np.cos(t))\n")
+    assert fixes[0].replacement == ("np.where(abs(2 * np.sin(t / 2) ** 2) < 0.5, np.log1p(-(2 * np.sin(t / 2) ** 2)), "
+                                    "np.log(np.cos(t)))")
+    plain = lambda t: math.log1p(-(2 * math.sin(t / 2) ** 2))  # noqa: E731
+    branched = lambda t: plain(t) if abs(2 * math.sin(t / 2) ** 2) < 0.5 else math.log(math.cos(t))  # noqa: E731
+    exact = lambda t: mpmath.log(mpmath.cos(t))  # noqa: E731
+    near = [(1.5707963,), (1.57079,), (1.5707963267,)]
+    assert worst_loss(plain, exact, near) >= 5.0
+    assert worst_loss(branched, exact, near) <= 1.0
+    assert worst_loss(branched, exact, geo(1e-8, 1.0)) <= 1.0

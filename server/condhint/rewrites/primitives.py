@@ -224,15 +224,13 @@ def candidates(node: Node, ctx: Context, kind: str) -> list[Node]:
         except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, AttributeError):
             continue
         for form in forms:
-            if form in seen or form == tr.expr:
+            if form in seen or form == tr.expr or len(out) >= MAX_CANDIDATES:
                 continue
             seen.add(form)
             try:
                 out.append(sym.from_sympy(form, tr))
             except (sym.Untranslatable, ValueError, TypeError):
                 continue
-            if len(out) >= MAX_CANDIDATES:
-                return out
     out = [c for c in out if any(n.kind in ("expm1", "log1p", "sin") for n in topological(c))]
     if kind == "logs":
         out += [b for c in out if (b := _branch_near_one(c, node)) is not None]
@@ -245,20 +243,15 @@ def _log1p_far_from_zero(candidate: Node, ctx: Context) -> bool:
     """Whether an unbranched log1p(d) of the candidate sees |d| ≥ 1/2 on the samples: there 1 + d may cancel (a
     logarithm of a value near 0) and between samples it may cancel badly (log cos t near t = π/2); the candidate
     with the branch is proposed instead."""
-    guarded = {id(n.args[1]) for n in topological(candidate) if n.kind == SELECT}
-    for n in topological(candidate):
-        if n.kind == "log1p" and not any(id(n) == g or _within(n, g, candidate) for g in guarded):
+    nodes = topological(candidate)
+    guarded = {id(x) for n in nodes if n.kind == SELECT for x in topological(n.args[1])}  # under a branch taken
+    for n in nodes:                                                                      # only where it is near 0
+        if n.kind == "log1p" and id(n) not in guarded:
             with np.errstate(all="ignore"):
                 v = ctx.bench.values(n.args[0])
             if np.any(np.abs(v[np.isfinite(v)]) >= 0.5):
                 return True
     return False
-
-
-def _within(node: Node, root_id: int, candidate: Node) -> bool:
-    """Whether `node` lies under the node with id `root_id` in `candidate`."""
-    root = next((n for n in topological(candidate) if id(n) == root_id), None)
-    return root is not None and any(n is node for n in topological(root))
 
 
 def _branch_near_one(candidate: Node, original: Node) -> Node | None:
