@@ -394,6 +394,19 @@ CASES = [
          lambda a, b, g: mpmath.sqrt(a * a + b * b - 2 * a * b * mpmath.cos(g)),
          [(1.0 + k / 20, 1.0 + k / 20 + 1e-9 * k, 1e-8 * 1.5 ** k) for k in range(20)],
          "NIST DLMF ch. 4 (half-angle formula)"),
+    # The base's logarithm through log1p only near one (a tail quantile: q → 0 cancels in the power, q → 1 would
+    # cancel inside log1p): the choice is written out where the samples reach both.
+    Case("near-one-difference", "import math\n"
+         "def tail_quantile(q, c):  # condhint: 1e-12 <= q <= 0.999999, 0.01 <= c <= 2\n"
+         "    return 1 - ((1.0 - q) / (1.0 + q)) ** c\n",
+         "-math.expm1(c * (math.log1p(-(2 * q / (1.0 + q))) if q / (1.0 + q) < 0.25 "
+         "else math.log((1.0 - q) / (1.0 + q))))", [],
+         lambda q, c: 1 - ((1.0 - q) / (1.0 + q)) ** c,
+         lambda q, c: -math.expm1(c * (math.log1p(-(2 * q / (1.0 + q))) if q / (1.0 + q) < 0.25
+                                       else math.log((1.0 - q) / (1.0 + q)))),
+         lambda q, c: 1 - ((1 - mpmath.mpf(q)) / (1 + mpmath.mpf(q))) ** c,
+         grid(np.concatenate([np.geomspace(1e-12, 0.3, 8), [0.9, 0.999, 0.999999]]), np.array([0.01, 0.5, 2.0])),
+         "Goldberg 1991 (log1p, expm1); NIST DLMF 4.2"),
 ]
 
 
