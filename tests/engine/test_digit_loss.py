@@ -172,3 +172,37 @@ def test_loss_explained_by_kappa_is_not_called_avoidable_on_guessed_ranges():
     assert [x.code for x in found if x is not f] == ["CH201"]  # the inherent part is reported with it
     x = f.worst_at["t"] * f.worst_at["omega"]
     assert f.measured_digits_lost <= math.log10(abs(x / math.tan(x))) + 1.0
+
+
+def test_a_loss_is_not_blamed_on_the_branch_np_where_leaves_unused():
+    # numpy's where computes both branches; only the one taken reaches the result. Here (an invented sampler)
+    # the log1p branch is taken wherever the log would lose digits, and the loss that remains is 1 − x² with
+    # x near −1 (checked with mpmath: 1 − x² at x = −0.99990 loses 2.9 digits in binary64).
+    src = ("import numpy as np\n\n\ndef sample(kappa, u):  # condhint: 1e-6 <= kappa <= 1e-3, 0 <= u <= 1e-4\n"
+           "    x = 1. + np.where(abs((1. - u) * np.expm1(-2 * kappa)) < 0.5, np.log1p((1. - u) * np.expm1(-2 * kappa)),"
+           " np.log(u + (1. - u) * np.exp(-2 * kappa)))/kappa\n"
+           "    return np.sqrt(1. - np.square(x))\n")
+    losses = [f for f in findings(src, "warning") if f.code == "CH101"]
+    assert [f.expression for f in losses] == ["1. - np.square(x)"]
+    x = 1 + math.log1p((1 - 5e-5) * math.expm1(-2 * 1e-4)) / 1e-4
+    with mpmath.workdps(50):
+        assert digits_lost(1.0 - x * x, 1 - mpmath.mpf(x) ** 2) >= 2.5
+
+
+def test_a_total_cancellation_is_resolved_beyond_two_zeros():
+    # erf(a) + erf(b) with a = −15.36, b = 15.66: binary64 gives 0, and so do 40 and 80 digits; the true value
+    # is erfc(15.36) − erfc(15.66) ≈ 1.09e−104 (mpmath at 400 digits, outside condhint).
+    from condhint.expr import Node, topological
+    from condhint.numeric.reference import reference_values
+    x, c = Node("input", name="x"), Node("input", name="c")
+    s = Node("sqrt", (Node("const", value=2.0, exact="2"),))
+    root = Node("add", (Node("erf", (Node("div", (Node("sub", (x, c)), s)),)),
+                        Node("erf", (Node("div", (Node("add", (x, c)), s)),))))
+    cols = {"x": np.array([0.207801, 1.0]), "c": np.array([21.937, 1.0])}
+    vals, dps = reference_values(topological(root), cols, 2, None)
+    with mpmath.workdps(400):
+        truth = [mpmath.erf((mpmath.mpf(a) - b) / mpmath.sqrt(2)) + mpmath.erf((mpmath.mpf(a) + b) / mpmath.sqrt(2))
+                 for a, b in zip(cols["x"], cols["c"])]
+        for v, t in zip(vals[id(root)], truth):
+            assert abs(v - t) <= abs(t) * mpmath.mpf(10) ** -20
+    assert abs(float(truth[0]) - 1.0867e-104) < 1e-107

@@ -383,6 +383,7 @@ def _attribute(res: Analysis, nodes: list[Node], steps: dict[int, list[np.ndarra
     """Find where digits are lost: the operation whose result carries far more error than its operands."""
     index = {id(n): i for i, n in enumerate(nodes)}
     rset = set(rounding)
+    live = _live(nodes, steps, index, w)
     e = [0.0] * len(nodes)
     best, best_gain = None, 1.0
     for k, node in enumerate(nodes):
@@ -397,7 +398,7 @@ def _attribute(res: Analysis, nodes: list[Node], steps: dict[int, list[np.ndarra
             continue
         e[k] = own + sum(float(np.nan_to_num(c[w], nan=0.0, posinf=1e300)) * ei for c, ei in zip(cs, incoming))
         gain = e[k] / max(u, max(incoming, default=0.0))
-        if gain >= best_gain:
+        if gain >= best_gain and k in live:
             best, best_gain = k, gain
     if terms:
         res.dominant = max(terms, key=lambda k: float(np.nan_to_num(terms[k][w], nan=0.0)))
@@ -408,7 +409,7 @@ def _attribute(res: Analysis, nodes: list[Node], steps: dict[int, list[np.ndarra
         def step(k: int) -> float:
             return float(sum(np.nan_to_num(c[w], nan=0.0, posinf=1e300) for c in steps[k]))
 
-        res.culprit = max(steps, key=step)
+        res.culprit = max((k for k in steps if k in live), key=step, default=None)
     if res.culprit is not None:
         node = nodes[res.culprit]
         cs = steps.get(res.culprit)
@@ -417,6 +418,20 @@ def _attribute(res: Analysis, nodes: list[Node], steps: dict[int, list[np.ndarra
         top = max(weights, default=0.0)
         res.sources_of_error = [index[id(a)] for a, wt in zip(node.args, weights)
                                 if a.kind != CONST and wt >= 0.1 * top and e[index[id(a)]] >= 0.5 * u]
+
+
+def _live(nodes: list[Node], steps: dict[int, list[np.ndarray]], index: dict[int, int], w: int) -> set[int]:
+    """The operations whose error reaches the result at sample `w`: not in the branch a select leaves unused
+    there (`np.where` computes both), nor behind a factor that is zero."""
+    live = {len(nodes) - 1}
+    for k in range(len(nodes) - 1, -1, -1):
+        if k not in live:
+            continue
+        cs = steps.get(k)
+        for j, a in enumerate(nodes[k].args):
+            if cs is None or float(np.nan_to_num(cs[j][w], nan=1.0)) != 0.0:
+                live.add(index[id(a)])
+    return live
 
 
 def _first_nonfinite(nodes: list[Node], v64: dict[int, np.ndarray], w: int) -> int | None:

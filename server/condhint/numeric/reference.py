@@ -12,6 +12,9 @@ from condhint.numeric.backends import MP_BACKEND
 from condhint.numeric.evaluate import Deadline, forward
 
 
+ZERO_SETTLED = 320  # digits: a zero found at two precisions may be a cancellation beyond both (erf(−a) + erf(b))
+
+
 def reference_values(nodes: list[Node], cols: dict[str, np.ndarray], m: int, deadline: Deadline | None,
                      shallow: bool = False) -> tuple[dict[int, Any], int]:
     """mpmath values at a precision that makes the result stable (checked by re-evaluating higher).
@@ -30,22 +33,22 @@ def reference_values(nodes: list[Node], cols: dict[str, np.ndarray], m: int, dea
             vals = forward(nodes, cols, MP_BACKEND, m, deadline)
             cur = vals[id(root)]
             if prev is not None:
-                with mpmath.workdps(dps):
-                    ok = all(_agree(a, b) for a, b in zip(prev, cur))
+                ok = all(_agree(a, b, dps >= ZERO_SETTLED) for a, b in zip(prev, cur))
                 if ok or dps >= 1280:
                     return vals, dps
         prev = cur
         dps = dps + 40 if dps < 80 else dps * 2
 
 
-def _agree(a: Any, b: Any) -> bool:
-    """Two evaluations at different precisions agree to 22 digits (or are the same non-finite value)."""
+def _agree(a: Any, b: Any, zero_settled: bool = True) -> bool:
+    """Two evaluations at different precisions agree to 22 digits (or are the same non-finite value); two zeros
+    agree only once `zero_settled`."""
     if mpmath.isnan(a) or mpmath.isnan(b):
         return bool(mpmath.isnan(a) and mpmath.isnan(b))
     if mpmath.isinf(a) or mpmath.isinf(b):
         return a == b
     if b == 0:
-        return a == 0
+        return a == 0 and zero_settled
     return abs((a - b) / b) < mpmath.mpf(10) ** -22
 
 
