@@ -8,7 +8,7 @@ from dataclasses import replace
 
 from condhint.config import Config
 from condhint.engine import DEFAULT_CACHE, LOOP_CACHE, AnalysisCache, ModuleAnalysis, UnitCache, analyse_module
-from condhint.findings import FileReport, Finding, Fix
+from condhint.findings import Finding, Fix
 from condhint.loop_findings import LOOP, loop_fixes, loop_number
 from condhint.messages import with_fix_note
 from condhint.reading.module_index import read_module
@@ -47,8 +47,8 @@ def fixes_for(finding: Finding, ma: ModuleAnalysis, cfg: Config, cache: Analysis
     quiet = replace(cfg, kappa_formula=False)
     units = UnitCache(64)
 
-    def reanalyse(text: str) -> FileReport:
-        return analyse_module(text, ma.report.path, quiet, cache or DEFAULT_CACHE, units=units).report
+    def reanalyse(text: str) -> ModuleAnalysis:
+        return analyse_module(text, ma.report.path, quiet, cache or DEFAULT_CACHE, units=units)
 
     # The definition holding the finding with the module-level code around it: all a fix can affect, and a
     # small syntax tree to write code against (the whole module's is not kept by the language server).

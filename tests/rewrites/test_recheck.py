@@ -68,3 +68,26 @@ def test_a_shared_intermediate_is_fixed_at_its_binding():
     assert "    c = 2 * math.sin(t / 2) ** 2\n    depth = r * c\n    area = r * r * c / t\n" in fixed
     again = analysed(fixed)
     assert not [f for f in again.report.findings if f.severity in ("warning", "error")]
+
+
+# A sampler of our own in the style of Wood's von Mises-Fisher method: the logarithm of a value near one, and
+# later 1 − x² of its result. Before the fix, the loss of the second line is reported at the logarithm (its
+# error dominates); after it, 1 − x² shows its own smaller cancellation (x near −1) on the same expression.
+SAMPLER = '''import numpy as np
+
+
+def sample(kappa, u):  # condhint: 1e-4 <= kappa <= 1e-3, 1e-4 <= u <= 1e-3
+    x = 1. + np.log(u + (1. - u) * np.exp(-2 * kappa))/kappa
+    return np.sqrt(1. - np.square(x))
+'''
+
+
+def test_a_fix_that_uncovers_a_smaller_loss_it_did_not_cause_is_kept():
+    ma = analysed(SAMPLER)
+    before = {f.expression: f.digits_lost for f in ma.report.findings if f.code == "CH101"}
+    assert set(before) == {"np.log(u + (1. - u) * np.exp(-2 * kappa))"}
+    finding, fixes, _ = fixes_of(SAMPLER)
+    assert fixes and fixes[0].rule == "log-near-one"
+    after = analysed(SAMPLER.replace(finding.expression, fixes[0].replacement))
+    left = {f.expression: f.digits_lost for f in after.report.findings if f.code == "CH101"}
+    assert set(left) == {"1. - np.square(x)"} and left["1. - np.square(x)"] < min(before.values())

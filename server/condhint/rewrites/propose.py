@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING, Callable, Iterator
 
 from condhint.config import Config
 from condhint.expr import SELECT, Node, Span, topological
-from condhint.findings import FileReport, Finding, Fix
+from condhint.findings import Finding, Fix
 from condhint.numeric.analysis import Analysis
 from condhint.numeric.array_analysis import has_reductions
 from condhint.numeric.evaluate import BudgetExceeded, Deadline
@@ -31,6 +31,7 @@ from condhint.rewrites.writer import Writer
 from condhint.site import Site
 
 if TYPE_CHECKING:
+    from condhint.engine import ModuleAnalysis
     from condhint.reading.module_index import ModuleIndex
 
 ANCESTORS = 4
@@ -155,7 +156,7 @@ class Subject:
     analysis: Analysis | None
     index: "ModuleIndex"
     constants: dict[str, Node]
-    reanalyse: Callable[[str], FileReport]
+    reanalyse: Callable[[str], "ModuleAnalysis"]
 
 
 def fixes_for(subject: Subject, cfg: Config, seconds: float = SECONDS_PER_FINDING) -> list[Fix]:

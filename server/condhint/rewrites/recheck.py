@@ -9,31 +9,58 @@ from __future__ import annotations
 from collections import Counter
 from typing import TYPE_CHECKING, Callable
 
-from condhint.findings import FileReport, Finding, Fix
+from condhint.findings import Finding, Fix
 from condhint.kinds import FIXABLE_CATEGORIES
 from condhint.rewrites.apply import apply_fixes
 
 if TYPE_CHECKING:
+    from condhint.engine import ModuleAnalysis
     from condhint.reading.module_index import ModuleIndex
 
 FIXABLE = FIXABLE_CATEGORIES
 RECHECKED = 3  # how many of the best candidates are re-analysed at most
+NOISE = 0.5  # digits: a re-measured loss this much above the original's is not yet a worse one
 
 
 def fixable_findings(findings: list[Finding]) -> Counter[tuple[str, str, str]]:
-    return Counter((f.code, f.scope, " ".join(f.expression.split())) for f in findings if f.category in FIXABLE)
+    return Counter(_key(f) for f in findings if f.category in FIXABLE)
+
+
+def _key(f: Finding) -> tuple[str, str, str]:
+    return f.code, f.scope, " ".join(f.expression.split())
+
+
+Reported = tuple[tuple[str, str, str], "tuple[str, str, int, int] | None", float]
+
+
+def _reported(ma: "ModuleAnalysis") -> list[Reported]:
+    """Each fixable finding: its key, the analysed expression it is reported on (code, scope, start) and the
+    digits lost."""
+    out: list[Reported] = []
+    for f in ma.report.findings:
+        if f.category in FIXABLE:
+            site = ma.site_of(f)
+            out.append((_key(f), (f.code, f.scope, site.span.line, site.span.col) if site else None,
+                        f.digits_lost or 0.0))
+    return out
 
 
 def rechecked(fixes: list[Fix], finding: Finding, index: "ModuleIndex",
-              reanalyse: Callable[[str], FileReport]) -> list[Fix]:
-    """The fixes (at most `RECHECKED`, in order) whose patched code re-analyses without `finding` and
-    without any new fixable finding."""
+              reanalyse: Callable[[str], "ModuleAnalysis"]) -> list[Fix]:
+    """The fixes (at most `RECHECKED`, in order) whose patched code re-analyses without `finding` and without
+    a new fixable finding. A finding on another expression counts as new unless that expression lost as much
+    in the original code: there its loss was reported under an operation the fix has made accurate
+    (`np.sqrt(1 - x*x)` after `x`'s own formula is fixed)."""
     if not fixes:
         return []
     line = finding.span.line
     original = index.text if index.unit_at(line).is_module else index.focused_text(line)
-    before = fixable_findings(reanalyse(original).findings)
-    (own,) = fixable_findings([finding]) or [None]
+    first = _reported(reanalyse(original))
+    before = Counter(k for k, _, _ in first)
+    losses: dict[object, float] = {}
+    for _, site, lost in first:
+        losses[site] = max(losses.get(site, 0.0), lost)
+    own = _key(finding)
     out: list[Fix] = []
     for fix in fixes[:RECHECKED]:
         try:
@@ -41,10 +68,14 @@ def rechecked(fixes: list[Fix], finding: Finding, index: "ModuleIndex",
         except ValueError:
             continue
         again = reanalyse(patched)
-        if again.status != "ok":
+        if again.report.status != "ok":
             continue
-        after = fixable_findings(again.findings)
-        if after - before or after[own] >= before[own]:
+        now = _reported(again)
+        after = Counter(k for k, _, _ in now)
+        if after[own] >= before[own]:
+            continue
+        gained = after - before
+        if any(k in gained and (site is None or losses.get(site, -1.0) + NOISE < lost) for k, site, lost in now):
             continue
         out.append(fix)
     return out
