@@ -168,8 +168,9 @@ ERF_SUM = ("def mixed(x, c):  # condhint: -6 <= x <= 6, 0.5 <= c <= 1\n"
 
 def test_a_choice_in_scipy_special_code_is_numpys_where():
     fix = best_fix("import numpy as np\nimport scipy.special as sc\n\n\n" + ERF_SUM)
-    assert fix.replacement == ("np.where(x + c > 0, sc.erfc(x - c) - sc.erfc(x + c), "
-                               "sc.erfc(-(x + c)) - sc.erfc(c - x))")
+    assert fix.replacement == ("np.where(np.minimum(x + c, x - c) > 0.5, sc.erfc(x - c) - sc.erfc(x + c), "
+                               "np.where(np.maximum(x + c, x - c) < -0.5, sc.erfc(-(x + c)) - sc.erfc(c - x), "
+                               "sc.erf(x + c) + sc.erf(c - x)))")
 
 
 def test_no_python_choice_is_written_in_scipy_special_code():

@@ -261,6 +261,25 @@ CASES = [
          lambda a, B, C: (-B + mpmath.sqrt(B * B - 3 * a * C)) / (3 * a),
          grid(np.geomspace(1e-3, 1, 3), np.geomspace(1e2, 1e4, 3), np.geomspace(1e-3, 1, 3)),
          "Forsythe 1966 (the root without cancellation); minimiser of the interpolating cubic in line searches"),
+    # A cosine near its zero at π/2, in a line-search test function of our own: the argument measured from the
+    # quarter turn cancels exactly (α − 1), so only relative errors remain. The exact formula is with the true π.
+    Case("quarter-turn", "import numpy as np\n"
+         "def phi(alpha):  # condhint: 1 <= alpha <= 1.001\n    return np.cos(3*np.pi/2 * alpha - np.pi)\n",
+         "-np.sin(3 * np.pi * (alpha - 1) / 2)", [], lambda alpha: math.cos(3 * math.pi / 2 * alpha - math.pi),
+         lambda alpha: -math.sin(3 * math.pi * (alpha - 1) / 2),
+         lambda alpha: mpmath.cos(3 * mpmath.pi / 2 * alpha - mpmath.pi),
+         [(1 + float(d),) for d in np.geomspace(1e-12, 1e-3, 25)], "NIST DLMF 4.14, 4.21 (shifts by π/2)"),
+    # A square root times a factor, cancelling against a term (an invented gap formula): multiplied by the
+    # conjugate, the numerator a² − t²·(a²/t² − c) simplifies to c·t² exactly.
+    Case("conjugate", "import numpy as np\n"
+         "def gap(a, c, t):  # condhint: 1e3 <= a <= 1e4, 1 <= c <= 2, 1 <= t <= 2\n"
+         "    return a - t * np.sqrt(a * a / (t * t) - c)\n",
+         "c * (t * t) / (a + t * np.sqrt(a * a / (t * t) - c))", [],
+         lambda a, c, t: a - t * math.sqrt(a * a / (t * t) - c),
+         lambda a, c, t: c * (t * t) / (a + t * math.sqrt(a * a / (t * t) - c)),
+         lambda a, c, t: a - t * mpmath.sqrt(a * a / (t * t) - c),
+         grid(np.geomspace(1e3, 1e4, 4), np.linspace(1, 2, 3), np.linspace(1, 2, 3)),
+         "common practice (multiply by the conjugate)"),
     Case("erf-difference", "import math\n"
          "def tail_mass(a, b):  # condhint: 3 <= a <= 4, 5 <= b <= 6\n    return math.erf(a) - math.erf(b)\n",
          "math.erfc(b) - math.erfc(a)", [], lambda a, b: math.erf(a) - math.erf(b),
@@ -455,6 +474,11 @@ def test_every_rule_has_a_case():
 
 # (rule, source, node text the rule is tried on, why it must not fire)
 MUST_NOT_FIRE = [
+    ("conjugate", "import math\ndef f(a, c, t):  # condhint: 1e3 <= a <= 1e4, 1 <= c <= 2, 1 <= t <= 2\n"
+     "    return a + t * math.sqrt(a * a / (t * t) - c)\n", "a + t * math.sqrt(a * a / (t * t) - c)",
+     "precondition"),  # the terms add: nothing cancels
+    ("quarter-turn", "import numpy as np\ndef f(x):  # condhint: 1.5 <= x <= 1.65\n    return np.cos(x)\n", "np.cos(x)",
+     "precondition"),  # x − π/2 would round π/2 in the code, where the library's cos reduces x exactly
     ("expm1", "import math\ndef f(x):  # condhint: 1 <= x <= 10\n    return math.exp(x) - 1\n",
      "math.exp(x) - 1", "measured"),
     ("log1p", "import math\ndef f(x):  # condhint: 1 <= x <= 1e6\n    return math.log(1 + x)\n",
@@ -583,3 +607,52 @@ def test_log1p_far_from_zero_gets_a_branch():
     assert worst_loss(plain, exact, near) >= 5.0
     assert worst_loss(branched, exact, near) <= 1.0
     assert worst_loss(branched, exact, geo(1e-8, 1.0)) <= 1.0
+
+
+def test_an_erf_sum_over_both_tails_gets_a_three_way_branch():
+    # A folded normal's CDF (an invented scenario): erf(a) + erf(b) with a < 0 < b cancels where both lie in a
+    # tail; there erfc of the tails is exact (NIST DLMF 7.2.2, 7.4.1). Where an argument is small, erf is the
+    # accurate one, so the branch keeps the sum as written there (x near c, or x beyond it).
+    _, fixes, _ = fixes_of("import numpy as np\nimport scipy.special as sc\n\n\n"
+                           "def folded_cdf(x, c):  # condhint: 0.5 <= x <= 12, 6 <= c <= 9\n"
+                           "    return sc.erf((x - c) / np.sqrt(2)) + sc.erf((x + c) / np.sqrt(2))\n")
+    a, b = "(x - c) / np.sqrt(2)", "(x + c) / np.sqrt(2)"
+    assert fixes[0].replacement == (
+        f"np.where(np.minimum({a}, -({b})) > 0.5, sc.erfc(-({b})) - sc.erfc({a}), "
+        f"np.where(np.maximum({a}, -({b})) < -0.5, sc.erfc(-({a})) - sc.erfc({b}), sc.erf({a}) + sc.erf({b})))")
+    import scipy.special as sc
+
+    def written(x: float, c: float) -> float:
+        return float(sc.erf((x - c) / np.sqrt(2)) + sc.erf((x + c) / np.sqrt(2)))
+
+    def fixed(x: float, c: float) -> float:
+        p, q = (x - c) / np.sqrt(2), -((x + c) / np.sqrt(2))
+        if min(p, q) > 0.5:
+            return float(sc.erfc(q) - sc.erfc(p))
+        if max(p, q) < -0.5:
+            return float(sc.erfc(-p) - sc.erfc(-q))
+        return written(x, c)
+
+    def exact(x: object, c: object) -> object:
+        s = mpmath.sqrt(2)
+        return mpmath.erf((x - c) / s) + mpmath.erf((x + c) / s)
+
+    points = grid(np.linspace(0.5, 12, 24), np.linspace(6, 9, 7))
+    assert worst_loss(written, exact, points) >= 10.0
+    # What remains is the rounding of the arguments, magnified by erfc's own condition (about 2a² ≈ 80 at a = 6).
+    assert worst_loss(fixed, exact, points) <= 2.5
+
+
+def test_an_expression_continued_over_lines_inside_brackets_is_fixed_in_place():
+    # The conjugate case above, written over two lines inside parentheses: the expression's own text does not
+    # parse alone, but in its brackets it does, so the fix replaces it there and the file still parses.
+    import ast
+
+    from condhint.rewrites import apply_fixes
+    source = ("import numpy as np\n\n\ndef gap(a, c, t):  # condhint: 1e3 <= a <= 1e4, 1 <= c <= 2, 1 <= t <= 2\n"
+              "    return (a\n            - t * np.sqrt(a * a / (t * t) - c))\n")
+    _, fixes, _ = fixes_of(source)
+    assert fixes[0].rule == "conjugate" and fixes[0].span.line == 5 and fixes[0].span.end_line == 6
+    patched = apply_fixes(source, fixes[:1])
+    assert "return (c * (t * t) / (a + t * np.sqrt(a * a / (t * t) - c)))\n" in patched
+    ast.parse(patched)

@@ -96,11 +96,14 @@ def place(tree: ast.Module, source: "Source", span: "Span") -> int | None:
 
 
 def is_expression(text: str) -> bool:
-    try:
-        ast.parse(text.strip(), mode="eval")
-        return True
-    except SyntaxError:
-        return False
+    """Whether `text` reads as one expression, also one continued over lines inside the brackets around it."""
+    for t in (text.strip(), f"({text.strip()})"):
+        try:
+            ast.parse(t, mode="eval")
+            return True
+        except SyntaxError:
+            continue
+    return False
 
 
 MODULES = ("math", "numpy", "scipy.special")  # the modules whose functions fixes spell

@@ -262,3 +262,46 @@ def _branch_near_one(candidate: Node, original: Node) -> Node | None:
         return None
     near = dag.compare(dag.call("abs", d.args[0] if d.kind == "neg" else d), "<", dag.const(Fraction(1, 2)))
     return dag.select(near, candidate, original)
+
+
+# ---- trigonometric functions near a zero: the argument measured from the nearest quarter turn ----------------------
+# sin(R + m·π/2) and cos(R + m·π/2) as ±sin(R) or ±cos(R), by m mod 4 (NIST DLMF 4.14, 4.21).
+QUARTER_TURNS = {"sin": (("sin", 1), ("cos", 1), ("sin", -1), ("cos", -1)),
+                 "cos": (("cos", 1), ("sin", -1), ("cos", -1), ("sin", 1))}
+NEAR_ZERO = 1e-3  # a sine or cosine this small has lost its argument's absolute error to relative error
+
+
+def quarter_turns(node: Node, ctx: Context) -> list[Node]:
+    """sin(E) or cos(E) near one of its zeros, as ±sin(R) with R = E − m·π/2 normalised by sympy so that the
+    cancellation of E against the zero m·π/2 happens exactly (`cos(3π/2·α − π)` with α near 1 is
+    `−sin(3π(α − 1)/2)`). m is read off the samples where the value is near zero."""
+    if node.kind not in QUARTER_TURNS:
+        return []
+    with np.errstate(all="ignore"):
+        e, v = ctx.bench.values(node.args[0]), ctx.bench.values(node)
+    near = np.isfinite(v) & (np.abs(v) < NEAR_ZERO)
+    turns = sorted({int(m) for m in np.round(e[near] / (np.pi / 2))})
+    if not 0 < len(turns) <= 2:
+        return []
+    out: list[Node] = []
+    opened = _first_names(node, ctx)
+    for m in turns:
+        for op in ((), opened) if opened else ((),):
+            try:
+                tr = ctx.translate(node.args[0], op)
+                forms = once_with_budget(_normal_forms, (tr.expr - m * sp.pi / 2,), SYMPY_SECONDS)
+            except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, AttributeError):
+                continue
+            kind, sign = QUARTER_TURNS[node.kind][m % 4]
+            for form in forms[:1]:
+                if form.has(sp.pi) and not any(t.has(sp.pi) and not t.free_symbols for t in sp.Add.make_args(form)):
+                    # the quarter turn cancelled inside the normal form (3π(α − 1)/2), not left to the code (x − π/2)
+                    if form.could_extract_minus_sign():  # −sin(−u) as sin(u), cos(−u) as cos(u)
+                        form, sign = -form, (-sign if kind == "sin" else sign)
+                    try:
+                        r = sym.from_sympy(form, tr)
+                    except (sym.Untranslatable, ValueError, TypeError):
+                        continue
+                    out.append(dag.call(kind, r) if sign == 1 else dag.negated(dag.call(kind, r)))
+    return out[:MAX_CANDIDATES]
+

@@ -16,6 +16,7 @@ from condhint.expr import CONST, Node
 from condhint.rewrites import dag, primitives, sym
 from condhint.rewrites.angle_rules import ANGLE_RULES
 from condhint.rewrites.context import Context
+from condhint.rewrites.erf_rules import ERF_DIFFERENCE
 from condhint.rewrites.overflow_rules import OVERFLOW_RULES
 from condhint.rewrites.rule import Match, Rule
 
@@ -150,6 +151,39 @@ def _sqrt_and_term_build(m: Match, ctx: Context) -> list[Node]:
 SQRT_AND_TERM = Rule(
     "sqrt-minus-term", "Rationalise sqrt(a) − b", "a ≥ 0; applied where sqrt(a) and b have the same sign",
     "common practice (multiply by the conjugate)", _sqrt_and_term, _sqrt_and_term_build)
+
+
+def _conjugate_match(node: Node) -> Match | None:
+    """a + b·sqrt(p) (either order, either sign) where the square root is a factor of a product."""
+    terms = dag.signed_terms(node)
+    if terms is None:
+        return None
+    for (sa, a), (sb, prod) in (terms, terms[::-1]):
+        if prod.kind == "mul" and dag.unary(a, "sqrt") is None:
+            for i, f in enumerate(prod.args):
+                p = dag.unary(f, "sqrt")
+                if p is not None and dag.unary(prod.args[1 - i], "sqrt") is None:
+                    return {"a": a if sa == 1 else dag.negated(a), "b": prod.args[1 - i], "sb": sb, "p": p,
+                            "term": prod, "node": node}
+    return None
+
+
+def _conjugate_build(m: Match, ctx: Context) -> list[Node]:
+    """(a² − b²·p)/(a − b·sqrt(p)), the numerator simplified with a, b and p opened: exact where a and b·sqrt(p)
+    cancel (a·b·sb < 0). Only where they cancel on every sample: a branch to the form as written would still
+    compute the quotient where the terms add and are equal, 0/0 (h2 = k2 in scipy's elliptic-harmonic
+    constants), and numpy's `where` computes both branches."""
+    a, b, p, sb = m["a"], m["b"], m["p"], m["sb"]
+    if ctx.sign(dag.mul(a, b)) != -sb:
+        return []
+    num = ctx.simplest(dag.sub(dag.mul(a, a), dag.mul(dag.mul(b, b), p)), (a, b, p))
+    den = dag.sub(a, m["term"]) if sb == 1 else dag.add(a, m["term"])
+    return [dag.div(num, den)]
+
+
+CONJUGATE = Rule(
+    "conjugate", "Multiply a + b·sqrt(p) by its conjugate", "p ≥ 0; a and b·sqrt(p) of opposite signs",
+    "common practice (multiply by the conjugate)", _conjugate_match, _conjugate_build)
 
 
 def _hypot_match(node: Node) -> Match | None:
@@ -309,6 +343,10 @@ LOG_NEAR_ONE = Rule(
     "log-near-one", "Write the logarithm of a value near one with log1p", "argument > 0",
     "Goldberg 1991; ISO C99 log1p", lambda n: {"t": n} if n.kind in ("log", "log10", "log2") else None,
     lambda m, ctx: primitives.candidates(m["t"], ctx, "logs"))
+QUARTER_TURN = Rule(
+    "quarter-turn", "Measure the angle from the nearest quarter turn", "any angle", "NIST DLMF 4.14, 4.21",
+    lambda n: {"t": n} if n.kind in primitives.QUARTER_TURNS else None,
+    lambda m, ctx: primitives.quarter_turns(m["t"], ctx))
 
 
 # ---- trigonometry (NIST DLMF ch. 4: half-angle and sum-to-product) -------------------------------------------------------
@@ -347,35 +385,6 @@ def _tan_sin(m: Match, ctx: Context) -> list[Node]:
 TAN_MINUS_SIN = Rule(
     "tan-minus-sin", "Write tan(x) − sin(x) as 2·tan(x)·sin²(x/2)", "cos x ≠ 0", "NIST DLMF ch. 4",
     _difference_of("tan", "sin"), _tan_sin)
-
-
-# ---- the error function (NIST DLMF 7.2.2: erfc = 1 − erf; 7.4.1: erf is odd) -----------------------------------
-def _erf_difference_match(node: Node) -> Match | None:
-    """erf(a) − erf(b), also written erf(a) + erf(−b) or −erf(b) + erf(a)."""
-    terms = dag.signed_terms(node)
-    if terms is None:
-        return None
-    (s1, e1), (s2, e2) = terms
-    x1, x2 = dag.unary(e1, "erf"), dag.unary(e2, "erf")
-    if x1 is None or x2 is None or s1 == s2 == -1:
-        return None
-    (_, a), (sb, b) = ((s1, x1), (s2, x2)) if s1 == 1 else ((s2, x2), (s1, x1))
-    return {"a": a, "b": b if sb == -1 else dag.negated(b)}
-
-
-def _erf_difference_build(m: Match, ctx: Context) -> list[Node]:
-    """erfc(b) − erfc(a) where a > 0 (the tails of positive arguments), erfc(−a) − erfc(−b) where a ≤ 0."""
-    a, b = m["a"], m["b"]
-    upper = dag.sub(dag.call("erfc", b), dag.call("erfc", a))
-    lower = dag.sub(dag.call("erfc", dag.negated(a)), dag.call("erfc", dag.negated(b)))
-    aware = dag.select(dag.compare(a, ">", dag.const(0)), upper, lower)
-    sign = ctx.sign(a)
-    return [upper, aware] if sign == 1 else [lower, aware] if sign == -1 else [aware]
-
-
-ERF_DIFFERENCE = Rule(
-    "erf-difference", "Write the difference of error functions with erfc", "any a, b",
-    "NIST DLMF 7.2.2 and 7.4.1", _erf_difference_match, _erf_difference_build)
 
 
 # ---- the quadratic formula (Forsythe 1966; Goldberg 1991) -----------------------------------------------------------------
@@ -459,7 +468,8 @@ QUADRATIC_ROOT = Rule(
 RULES: tuple[Rule, ...] = (  # specific identities first, general algebra last
     QUADRATIC_ROOT, ASINH, *ANGLE_RULES, LOGADDEXP, HYPOT, *OVERFLOW_RULES,
     COMPOUND_POWER, LOG_DIFFERENCE, EXP_DIFFERENCE, ONE_MINUS_COS, COS_MINUS_ONE, TAN_MINUS_SIN, COS_DIFFERENCE,
-    SIN_DIFFERENCE, ERF_DIFFERENCE, EXPM1, LOG1P, NEAR_ONE_DIFFERENCE, LOG_NEAR_ONE, SQRT_DIFFERENCE, SQRT_AND_TERM,
+    SIN_DIFFERENCE, ERF_DIFFERENCE, EXPM1, LOG1P, NEAR_ONE_DIFFERENCE, LOG_NEAR_ONE, QUARTER_TURN, SQRT_DIFFERENCE, SQRT_AND_TERM,
+    CONJUGATE,
     COMBINE_FRACTIONS, QUOTIENT_MINUS_ONE, DIFFERENCE_OF_SQUARES, LOG_SUM_EXP, LOG2, EXP2,
 )
 BY_ID = {r.id: r for r in RULES}
