@@ -170,19 +170,21 @@ def _conjugate_match(node: Node) -> Match | None:
 
 def _conjugate_build(m: Match, ctx: Context) -> list[Node]:
     """(a² − b²·p)/(a − b·sqrt(p)), the numerator simplified with a, b and p opened: exact where a and b·sqrt(p)
-    cancel (a·b·sb < 0). Only where they cancel on every sample: a branch to the form as written would still
-    compute the quotient where the terms add and are equal, 0/0 (h2 = k2 in scipy's elliptic-harmonic
-    constants), and numpy's `where` computes both branches."""
+    cancel (a·b·sb < 0). Where the sign of a·b varies, a branch keeps the form as written elsewhere; its
+    quotient divides by 1 there, because numpy's `where` computes both branches and the denominator is 0 where
+    the terms add and are equal (h2 = k2 in scipy's elliptic-harmonic constants)."""
     a, b, p, sb = m["a"], m["b"], m["p"], m["sb"]
-    if ctx.sign(dag.mul(a, b)) != -sb:
-        return []
     num = ctx.simplest(dag.sub(dag.mul(a, a), dag.mul(dag.mul(b, b), p)), (a, b, p))
     den = dag.sub(a, m["term"]) if sb == 1 else dag.add(a, m["term"])
-    return [dag.div(num, den)]
+    ab = dag.mul(a, b)
+    if ctx.sign(ab) == -sb:
+        return [dag.div(num, den)]
+    cancels = dag.compare(ab, "<" if sb == 1 else ">", dag.const(0))
+    return [dag.select(cancels, dag.div(num, dag.select(cancels, den, dag.const(1))), m["node"])]
 
 
 CONJUGATE = Rule(
-    "conjugate", "Multiply a + b·sqrt(p) by its conjugate", "p ≥ 0; a and b·sqrt(p) of opposite signs",
+    "conjugate", "Multiply a + b·sqrt(p) by its conjugate", "p ≥ 0; applied where a and b·sqrt(p) cancel",
     "common practice (multiply by the conjugate)", _conjugate_match, _conjugate_build)
 
 
