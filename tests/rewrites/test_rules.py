@@ -656,3 +656,37 @@ def test_an_expression_continued_over_lines_inside_brackets_is_fixed_in_place():
     patched = apply_fixes(source, fixes[:1])
     assert "return (c * (t * t) / (a + t * np.sqrt(a * a / (t * t) - c)))\n" in patched
     ast.parse(patched)
+
+
+def test_a_conjugate_branch_divides_by_one_where_it_is_not_taken():
+    # scipy's elliptic-harmonic constant G32 (test_ellip_harm.py, NIST DLMF 29.3 for the functions): a + b·√p
+    # cancels where a·b < 0 and adds elsewhere. At h2 = k2 the terms add and are equal, so the conjugate's
+    # denominator is 0 and its numerator too (375·h2²k2²(h2 − k2)²·…): numpy's where computes both branches, so
+    # the branch divides by 1 where it is not taken. Checked in numpy with every floating-point error raising.
+    a = "16*(h2**4 + k2**4) - 36*h2*k2*(h2**2 + k2**2) + 46*h2**2*k2**2"
+    b = "-8*(h2**3 + k2**3) + 11*h2*k2*(h2 + k2)"
+    _, fixes, _ = fixes_of("import numpy as np\nfrom numpy import sqrt\n\n\n"
+                           "def g32(h2, k2):  # condhint: 1e-4 <= h2 <= 10, 1e-4 <= k2 <= 10\n"
+                           f"    return ({a}\n            + sqrt(4*(h2**2 + k2**2) - 7*h2*k2)*({b}))\n")
+    fix = fixes[0]
+    assert fix.rule == "conjugate"
+    assert fix.replacement.startswith(f"np.where(({a}) * ({b}) < 0, 375 * h2**2 * k2**2 * (h2 - k2) ** 2 * ")
+    assert ", 1), " in fix.replacement
+
+    def fixed(h2: float, k2: float) -> float:  # the fix as written above, both branches computed as numpy does
+        h2, k2 = np.float64(h2), np.float64(k2)
+        with np.errstate(all="raise"):
+            aa = 16*(h2**4 + k2**4) - 36*h2*k2*(h2**2 + k2**2) + 46*h2**2*k2**2
+            bb = -8*(h2**3 + k2**3) + 11*h2*k2*(h2 + k2)
+            root = np.sqrt(4*(h2**2 + k2**2) - 7*h2*k2)
+            cancels = aa * bb < 0
+            quotient = 375 * h2**2 * k2**2 * (h2 - k2) ** 2 * (4*(h2**2 + k2**2) - 7*h2*k2) / np.where(
+                cancels, aa - root * bb, 1)
+            return float(np.where(cancels, quotient, aa + root * bb))
+
+    def exact(h2: object, k2: object) -> object:
+        return (16*(h2**4 + k2**4) - 36*h2*k2*(h2**2 + k2**2) + 46*h2**2*k2**2
+                + mpmath.sqrt(4*(h2**2 + k2**2) - 7*h2*k2)*(-8*(h2**3 + k2**3) + 11*h2*k2*(h2 + k2)))
+
+    assert fixed(2.5, 2.5) == 12 * 2.5**4  # a = 6h⁴ and b·√p = 6h⁴ add; the conjugate would be 0/0
+    assert worst_loss(fixed, exact, grid(np.geomspace(1e-4, 10, 9), np.geomspace(1e-4, 10, 9))) <= 1.5
