@@ -17,11 +17,13 @@ BELOW_BINARY64 = mpmath.mpf(10) ** -330  # below the smallest subnormal, 4.9e−
 
 
 def reference_values(nodes: list[Node], cols: dict[str, np.ndarray], m: int, deadline: Deadline | None,
-                     shallow: bool = False) -> tuple[dict[int, Any], int]:
+                     shallow: bool = False, zeros_settle: int = 0) -> tuple[dict[int, Any], int]:
     """mpmath values at a precision that makes the result stable (checked by re-evaluating higher).
 
     `shallow`: binary64 already shows that fewer than 12 digits cancel, so 50 digits leave ample margin and
-    one evaluation suffices.
+    one evaluation suffices. `zeros_settle`: the precision from which two zeros (or two values below binary64's
+    range) agree; `ZERO_SETTLED` where a wrong zero would matter (comparing two formulas), 0 where such a sample
+    is only left out (the analysis counts no loss at a zero).
     """
     root = nodes[-1]
     if shallow:
@@ -34,7 +36,7 @@ def reference_values(nodes: list[Node], cols: dict[str, np.ndarray], m: int, dea
             vals = forward(nodes, cols, MP_BACKEND, m, deadline)
             cur = vals[id(root)]
             if prev is not None:
-                ok = all(_agree(a, b, dps >= ZERO_SETTLED) for a, b in zip(prev, cur))
+                ok = all(_agree(a, b, dps >= zeros_settle) for a, b in zip(prev, cur))
                 if ok or dps >= 1280:
                     return vals, dps
         prev = cur

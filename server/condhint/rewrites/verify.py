@@ -30,7 +30,7 @@ from condhint.numeric.backends import F64_BACKEND
 from condhint.numeric.evaluate import BudgetExceeded, Deadline, forward, reverse
 from condhint.numeric.formats import Format
 from condhint.numeric.operations import SATURATED
-from condhint.numeric.reference import reference_values
+from condhint.numeric.reference import ZERO_SETTLED, reference_values
 from condhint.numeric.sampling import sample
 from condhint.once import once_with_budget
 from condhint.rewrites import sym
@@ -129,7 +129,7 @@ class Bench:
         if len(missing):
             nodes = topological(root)
             sub = {k: v[missing] for k, v in self.cols.items()}
-            vals, dps = reference_values(nodes, sub, len(missing), deadline)
+            vals, dps = reference_values(nodes, sub, len(missing), deadline, zeros_settle=ZERO_SETTLED)
             for i, value in zip(missing, vals[id(root)]):
                 memo[int(i)] = (value, dps)
         return [memo[int(i)] for i in idx]
@@ -212,8 +212,10 @@ class Bench:
         for flip in flips:
             cols = {k: (-v[pts] if k in flip else v[pts]) for k, v in self.cols.items()}
             try:
-                orig, dps = reference_values(topological(self.site.root), cols, len(pts), deadline)
-                cand, _ = reference_values(topological(candidate_root), cols, len(pts), deadline)
+                orig, dps = reference_values(topological(self.site.root), cols, len(pts), deadline,
+                                             zeros_settle=ZERO_SETTLED)
+                cand, _ = reference_values(topological(candidate_root), cols, len(pts), deadline,
+                                           zeros_settle=ZERO_SETTLED)
             except BudgetExceeded:
                 return "not checked at negative inputs within the time budget"
             names = ", ".join(sorted(flip))
