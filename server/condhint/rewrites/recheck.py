@@ -22,10 +22,6 @@ RECHECKED = 3  # how many of the best candidates are re-analysed at most
 NOISE = 0.5  # digits: a re-measured loss this much above the original's is not yet a worse one
 
 
-def fixable_findings(findings: list[Finding]) -> Counter[tuple[str, str, str]]:
-    return Counter(_key(f) for f in findings if f.category in FIXABLE)
-
-
 def _key(f: Finding) -> tuple[str, str, str]:
     return f.code, f.scope, " ".join(f.expression.split())
 
