@@ -207,3 +207,16 @@ def test_a_total_cancellation_is_resolved_beyond_two_zeros():
         for v, t in zip(vals[id(root)], truth):
             assert abs(v - t) <= abs(t) * mpmath.mpf(10) ** -20
     assert abs(float(truth[0]) - 1.0867e-104) < 1e-107
+
+
+def test_values_below_binary64_range_agree_once_zeros_would():
+    # Below binary64's smallest subnormal (4.9e−324, IEEE 754) no result of the code can differ, so two
+    # precisions that give 1e−340 and 3e−340 (or 0 and 1e−534, erf(−34.9) + erf(35.7)) need not be raised
+    # further, but only from the precision at which two zeros are trusted too.
+    from condhint.numeric.reference import _agree
+    tiny, other = mpmath.mpf("1e-340"), mpmath.mpf("3e-340")
+    assert _agree(tiny, other, zero_settled=True) and _agree(mpmath.mpf(0), mpmath.mpf("1e-534"), True)
+    assert _agree(mpmath.mpf("1e-534"), mpmath.mpf(0), True) and _agree(mpmath.mpf(0), mpmath.mpf(0), True)
+    assert not _agree(mpmath.mpf(0), mpmath.mpf(0), zero_settled=False)
+    assert not _agree(tiny, other, zero_settled=False)
+    assert not _agree(mpmath.mpf("1e-300"), mpmath.mpf("3e-300"), zero_settled=True)  # binary64 can show these
