@@ -280,6 +280,10 @@ CASES = [
          lambda a, c, t: a - t * mpmath.sqrt(a * a / (t * t) - c),
          grid(np.geomspace(1e3, 1e4, 4), np.linspace(1, 2, 3), np.linspace(1, 2, 3)),
          "common practice (multiply by the conjugate)"),
+    # A square root written as a power ** 0.5 is a square root to the rules too (common practice).
+    Case("sqrt-minus-term", "def excess(x):  # condhint: 1e3 <= x <= 1e8\n    return (x * x + 1) ** 0.5 - x\n",
+         "1 / ((x * x + 1) ** 0.5 + x)", [], lambda x: (x * x + 1) ** 0.5 - x, lambda x: 1 / ((x * x + 1) ** 0.5 + x),
+         lambda x: mpmath.sqrt(x * x + 1) - x, geo(1e3, 1e8), "common practice (multiply by the conjugate)"),
     Case("erf-difference", "import math\n"
          "def tail_mass(a, b):  # condhint: 3 <= a <= 4, 5 <= b <= 6\n    return math.erf(a) - math.erf(b)\n",
          "math.erfc(b) - math.erfc(a)", [], lambda a, b: math.erf(a) - math.erf(b),

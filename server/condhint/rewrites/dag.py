@@ -110,6 +110,13 @@ def unary(node: Node, kind: str) -> Node | None:
     return node.args[0] if node.kind == kind and len(node.args) == 1 else None
 
 
+def sqrt_of(node: Node) -> Node | None:
+    """p for sqrt(p) and p ** 0.5 (also p ** (1/2))."""
+    if node.kind == "pow" and is_const(node.args[1], 0.5):
+        return node.args[0]
+    return unary(node, "sqrt")
+
+
 def square_of(node: Node) -> Node | None:
     """x for x*x, x**2, square(x)."""
     if node.kind == "mul" and same(node.args[0], node.args[1]):

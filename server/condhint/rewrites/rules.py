@@ -117,8 +117,8 @@ def _sqrt_and_term(node: Node) -> Match | None:
     if terms is None:
         return None
     for (s, root), (r, t) in (terms, terms[::-1]):
-        p = dag.unary(root, "sqrt")
-        if p is not None and dag.unary(t, "sqrt") is None:
+        p = dag.sqrt_of(root)
+        if p is not None and dag.sqrt_of(t) is None:
             if t.kind == "neg":  # `sqrt(p) + -t`: the sign goes to r, so the code reads `+ t` and `t > 0`
                 r, t = -r, t.args[0]
             elif t.kind == "mul" and (c := dag.const_value(t.args[0])) is not None and c < 0:
@@ -159,10 +159,10 @@ def _conjugate_match(node: Node) -> Match | None:
     if terms is None:
         return None
     for (sa, a), (sb, prod) in (terms, terms[::-1]):
-        if prod.kind == "mul" and dag.unary(a, "sqrt") is None:
+        if prod.kind == "mul" and dag.sqrt_of(a) is None:
             for i, f in enumerate(prod.args):
-                p = dag.unary(f, "sqrt")
-                if p is not None and dag.unary(prod.args[1 - i], "sqrt") is None:
+                p = dag.sqrt_of(f)
+                if p is not None and dag.sqrt_of(prod.args[1 - i]) is None:
                     return {"a": a if sa == 1 else dag.negated(a), "b": prod.args[1 - i], "sb": sb, "p": p,
                             "term": prod, "node": node}
     return None
