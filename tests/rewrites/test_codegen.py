@@ -176,3 +176,14 @@ def test_a_choice_in_scipy_special_code_is_numpys_where():
 def test_no_python_choice_is_written_in_scipy_special_code():
     finding, fixes, _ = fixes_of("import scipy.special as sc\n\n\n" + ERF_SUM)
     assert finding.code == "CH101" and all(" if " not in f.replacement for f in fixes)
+
+
+def test_python_code_makes_a_repeated_choice_once():
+    # A rewrite's branch may repeat its test inside (the quotient divides by 1 where numpy's `where` does not take
+    # it, because numpy computes both sides). Python evaluates only the branch taken, so the inner choice is
+    # written as decided. The tilt of an ellipse whose axes may come in either order (an invented case).
+    fix = best_fix("import math\n\n\ndef tilt(a, b, c):  # condhint: 1 <= a <= 10, 1e-6 <= b <= 1e-3, 1 <= c <= 10\n"
+                   "    delta = (((a - c) * 0.5) ** 2 + b * b) ** 0.5\n    major = (a + c) * 0.5 + delta\n"
+                   "    return math.atan2(major - a, b)\n")
+    assert fix.rule == "rationalise"
+    assert fix.replacement == "b * b / (a / 2 + delta - c / 2) if c / 2 - a / 2 < 0 else major - a"

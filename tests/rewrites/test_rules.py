@@ -284,6 +284,18 @@ CASES = [
     Case("sqrt-minus-term", "def excess(x):  # condhint: 1e3 <= x <= 1e8\n    return (x * x + 1) ** 0.5 - x\n",
          "1 / ((x * x + 1) ** 0.5 + x)", [], lambda x: (x * x + 1) ** 0.5 - x, lambda x: 1 / ((x * x + 1) ** 0.5 + x),
          lambda x: mpmath.sqrt(x * x + 1) - x, geo(1e3, 1e8), "common practice (multiply by the conjugate)"),
+    # The tilt of a covariance ellipse (an invented case): the major eigenvalue minus a, both behind names. The
+    # names that lead to the square root are opened two levels, and (k²P − R²) simplifies to b² exactly.
+    Case("rationalise", "import math\n"
+         "def tilt(a, b, c):  # condhint: 1e3 <= a <= 1e4, 1e-6 <= b <= 1e-3, 1 <= c <= 10\n"
+         "    delta = (((a - c) * 0.5) ** 2 + b * b) ** 0.5\n    major = (a + c) * 0.5 + delta\n"
+         "    return math.atan2(major - a, b)\n",
+         "b * b / (a / 2 + delta - c / 2)", [],
+         lambda a, b, c: ((a + c) * 0.5 + (((a - c) * 0.5) ** 2 + b * b) ** 0.5) - a,
+         lambda a, b, c: b * b / (a / 2 + (((a - c) * 0.5) ** 2 + b * b) ** 0.5 - c / 2),
+         lambda a, b, c: (a + c) / 2 + mpmath.sqrt(((a - c) / 2) ** 2 + b * b) - a,
+         grid(np.geomspace(1e3, 1e4, 3), np.geomspace(1e-6, 1e-3, 4), np.linspace(1, 10, 3)),
+         "common practice (multiply by the conjugate); 2×2 symmetric eigenvalues"),
     Case("erf-difference", "import math\n"
          "def tail_mass(a, b):  # condhint: 3 <= a <= 4, 5 <= b <= 6\n    return math.erf(a) - math.erf(b)\n",
          "math.erfc(b) - math.erfc(a)", [], lambda a, b: math.erf(a) - math.erf(b),
@@ -478,6 +490,9 @@ def test_every_rule_has_a_case():
 
 # (rule, source, node text the rule is tried on, why it must not fire)
 MUST_NOT_FIRE = [
+    ("rationalise", "def f(a, b, c):  # condhint: 1e3 <= a <= 1e4, 1e-6 <= b <= 1e-3, 1 <= c <= 10\n"
+     "    delta = (((a - c) * 0.5) ** 2 + b * b) ** 0.5\n    return (a + c) * 0.5 + delta - c\n",
+     "(a + c) * 0.5 + delta - c", "measured"),  # the terms add: the branch never takes the quotient
     ("conjugate", "import math\ndef f(a, c, t):  # condhint: 1e3 <= a <= 1e4, 1 <= c <= 2, 1 <= t <= 2\n"
      "    return a + t * math.sqrt(a * a / (t * t) - c)\n", "a + t * math.sqrt(a * a / (t * t) - c)",
      "measured"),  # the terms add: the branch never takes the conjugate, nothing is gained

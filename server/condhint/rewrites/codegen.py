@@ -17,6 +17,7 @@ from typing import TYPE_CHECKING, Callable
 from condhint.expr import COMPARE, CONST, INPUT, SELECT, Node, topological
 from condhint.numeric.formats import BINARY64
 from condhint.numeric.operations import OPERATIONS
+from condhint.rewrites import dag
 
 if TYPE_CHECKING:
     from condhint.expr import Span
@@ -93,6 +94,13 @@ def place(tree: ast.Module, source: "Source", span: "Span") -> int | None:
         _PLACES[id(tree)] = hit = (tree, index)
     found = hit[1].get(span)
     return None if found is None else needed_by(*found)
+
+
+def _decided(node: Node, cond: Node, side: int) -> Node:
+    """`node` with every choice on the test `cond` replaced by its branch `side` (1: taken, 2: not taken)."""
+    for sel in [n for n in topological(node) if n.kind == SELECT and dag.same(n.args[0], cond)]:
+        node = dag.substitute(node, sel, sel.args[side], by_key=True)
+    return node
 
 
 def is_expression(text: str) -> bool:
@@ -306,9 +314,11 @@ class Emitter:
             (ta, pa), (tb, pb) = self._emit(node.args[0]), self._emit(node.args[1])
             return f"{_par(ta, pa <= COMPARE_P)} {node.name} {_par(tb, pb <= COMPARE_P)}", COMPARE_P
         if node.kind == SELECT:
-            c, a, b = (self._emit(x) for x in node.args)
             if self.spelling.array_style:
+                c, a, b = (self._emit(x) for x in node.args)
                 return f"{self.spelling.where()}({c[0]}, {a[0]}, {b[0]})", ATOM_P
+            cond, taken, other = node.args  # Python evaluates one branch: a choice on the same test inside is made
+            c, a, b = (self._emit(x) for x in (cond, _decided(taken, cond, 1), _decided(other, cond, 2)))
             return f"{_par(a[0], a[1] <= SELECT_P)} if {_par(c[0], c[1] <= SELECT_P)} else {b[0]}", SELECT_P
         if node.kind in OPERATIONS:
             name = self.spelling.function(node.kind)

@@ -305,3 +305,58 @@ def quarter_turns(node: Node, ctx: Context) -> list[Node]:
                     out.append(dag.call(kind, r) if sign == 1 else dag.negated(dag.call(kind, r)))
     return out[:MAX_CANDIDATES]
 
+
+# ---- a square root against the other terms, after opening names two levels ---------------------------------------
+def _root_term(e: Expr) -> tuple[Expr, Expr, Expr] | None:
+    """(k, P, R) with e = k·sqrt(P) + R, exactly one term of e holding a square root."""
+    if not e.is_Add:
+        return None
+    found = [t for t in e.args if any(f.is_Pow and f.exp == sp.Rational(1, 2) for f in sp.Mul.make_args(t))]
+    if len(found) != 1:
+        return None
+    term = found[0]
+    root = next(f for f in sp.Mul.make_args(term) if f.is_Pow and f.exp == sp.Rational(1, 2))
+    k = term / root
+    if k.has(sp.Pow) and any(f.is_Pow and f.exp == sp.Rational(1, 2) for f in sp.preorder_traversal(k)):
+        return None
+    return k, root.base, e - term
+
+
+def _names_to_a_root(node: Node, ctx: Context) -> tuple[Node, ...]:
+    """The named values, two levels deep, whose definitions hold a square root: only those are opened, so the
+    others keep their names in the fix."""
+    first = _first_names(node, ctx)
+    found = [*first, *(m for n in first for m in _first_names(n, ctx))]
+    return tuple({id(n): n for n in found if any(dag.sqrt_of(x) is not None for x in topological(n))}.values())
+
+
+def rationalised(node: Node, ctx: Context) -> list[Node]:
+    """k·sqrt(P) + R as (k²P − R²)/(k·sqrt(P) − R), the numerator normalised by sympy with the target's names
+    opened two levels, so that `lambda1 - a` with `lambda1 = (a + c)*0.5 + delta` and
+    `delta = (((a - c)*0.5)**2 + b*b)**0.5` becomes `b**2/(delta - (c/2 - a/2))`: exact where the terms cancel.
+    Where R's sign against k varies, a branch keeps the form as written where they add, dividing by 1 there
+    (numpy's `where` computes both)."""
+    if node.kind not in ("add", "sub"):
+        return []
+    opened = _names_to_a_root(node, ctx)
+    if not opened:
+        return []
+    try:
+        tr = ctx.translate(node, opened)
+        parts = _root_term(tr.expr)
+        if parts is None:
+            return []
+        k, p, r = parts
+        forms = once_with_budget(_normal_forms, (k * k * p - r * r,), SYMPY_SECONDS)
+        if not forms:
+            return []
+        num = sym.from_sympy(forms[0], tr)
+        den = sym.from_sympy(k * sp.sqrt(p) - r, tr)
+        product = sym.from_sympy(r * k, tr)  # R against k: they cancel where its sign is negative
+    except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, AttributeError, sym.Untranslatable):
+        return []
+    if ctx.sign(product) == -1:
+        return [dag.div(num, den)]
+    cancels = dag.compare(product, "<", dag.const(0))
+    return [dag.select(cancels, dag.div(num, dag.select(cancels, den, dag.const(1))), node)]
+

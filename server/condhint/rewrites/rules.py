@@ -345,6 +345,10 @@ LOG_NEAR_ONE = Rule(
     "log-near-one", "Write the logarithm of a value near one with log1p", "argument > 0",
     "Goldberg 1991; ISO C99 log1p", lambda n: {"t": n} if n.kind in ("log", "log10", "log2") else None,
     lambda m, ctx: primitives.candidates(m["t"], ctx, "logs"))
+RATIONALISED = Rule(
+    "rationalise", "Rationalise a square root against the other terms", "applied where they cancel",
+    "common practice (multiply by the conjugate)", lambda n: {"t": n} if n.kind in ("add", "sub") else None,
+    lambda m, ctx: primitives.rationalised(m["t"], ctx))
 QUARTER_TURN = Rule(
     "quarter-turn", "Measure the angle from the nearest quarter turn", "any angle", "NIST DLMF 4.14, 4.21",
     lambda n: {"t": n} if n.kind in primitives.QUARTER_TURNS else None,
@@ -471,7 +475,7 @@ RULES: tuple[Rule, ...] = (  # specific identities first, general algebra last
     QUADRATIC_ROOT, ASINH, *ANGLE_RULES, LOGADDEXP, HYPOT, *OVERFLOW_RULES,
     COMPOUND_POWER, LOG_DIFFERENCE, EXP_DIFFERENCE, ONE_MINUS_COS, COS_MINUS_ONE, TAN_MINUS_SIN, COS_DIFFERENCE,
     SIN_DIFFERENCE, ERF_DIFFERENCE, EXPM1, LOG1P, NEAR_ONE_DIFFERENCE, LOG_NEAR_ONE, QUARTER_TURN, SQRT_DIFFERENCE,
-    SQRT_AND_TERM, CONJUGATE,
+    SQRT_AND_TERM, CONJUGATE, RATIONALISED,
     COMBINE_FRACTIONS, QUOTIENT_MINUS_ONE, DIFFERENCE_OF_SQUARES, LOG_SUM_EXP, LOG2, EXP2,
 )
 BY_ID = {r.id: r for r in RULES}
