@@ -709,3 +709,16 @@ def test_a_conjugate_branch_divides_by_one_where_it_is_not_taken():
 
     assert fixed(2.5, 2.5) == 12 * 2.5**4  # a = 6h⁴ and b·√p = 6h⁴ add; the conjugate would be 0/0
     assert worst_loss(fixed, exact, grid(np.geomspace(1e-4, 10, 9), np.geomspace(1e-4, 10, 9))) <= 1.5
+
+
+def test_rationalise_opens_no_name_it_does_not_need():
+    # matplotlib's arcball (mplot3d): a − sqrt((a + dr)(a − dr)) with dr = ra − r and r a square root itself.
+    # The root to rationalise is written in the expression, so no name is opened and the numerator is dr²
+    # (a² − (a + dr)(a − dr), exact algebra); opening dr would spell it through r and ra.
+    src = ("import numpy as np\n\n\ndef arcball(x, y, b):  # condhint: 0.01 <= b <= 0.5, 0 <= x <= 1, 0 <= y <= 1\n"
+           "    r = np.sqrt(x*x + y*y)\n    ra = 1 + b\n    a = b * (1 + b/2)\n    dr = ra - r\n"
+           "    return a - np.sqrt((a + dr) * (a - dr))\n")
+    ma = analysed(src)
+    ctx, node, bench, writer, site = context_for(ma, "a - np.sqrt((a + dr) * (a - dr))")
+    texts = [writer.write(c)[0] for c in BY_ID["rationalise"].candidates(node, ctx)]
+    assert texts and all("dr ** 2 / " in t and "ra" not in t for t in texts), texts

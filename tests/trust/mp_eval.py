@@ -113,6 +113,8 @@ class Evaluator:
             if isinstance(op, ast.Pow):
                 return a ** b
             raise Unsupported(type(op).__name__)
+        if isinstance(node, ast.IfExp):  # Python evaluates only the branch taken
+            return self.value(node.body if self.value(node.test, env) else node.orelse, env)
         if isinstance(node, ast.Compare) and len(node.ops) == 1 and type(node.ops[0]) in _COMPARE:
             return _COMPARE[type(node.ops[0])](self.value(node.left, env), self.value(node.comparators[0], env))
         if isinstance(node, ast.Call):

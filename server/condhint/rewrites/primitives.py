@@ -322,12 +322,15 @@ def _root_term(e: Expr) -> tuple[Expr, Expr, Expr] | None:
     return k, root.base, e - term
 
 
-def _names_to_a_root(node: Node, ctx: Context) -> tuple[Node, ...]:
-    """The named values, two levels deep, whose definitions hold a square root: only those are opened, so the
-    others keep their names in the fix."""
+def _openings_to_a_root(node: Node, ctx: Context) -> list[tuple[Node, ...]]:
+    """The names to open, fewest first: none, then those of the target that lead to a square root, then with
+    the names their definitions use (two levels). Names that lead to no root keep their names in the fix."""
+    def to_root(names: list[Node]) -> tuple[Node, ...]:
+        return tuple({id(n): n for n in names if any(dag.sqrt_of(x) is not None for x in topological(n))}.values())
     first = _first_names(node, ctx)
-    found = [*first, *(m for n in first for m in _first_names(n, ctx))]
-    return tuple({id(n): n for n in found if any(dag.sqrt_of(x) is not None for x in topological(n))}.values())
+    one = to_root(first)
+    two = to_root([*first, *(m for n in first for m in _first_names(n, ctx))])
+    return [(), *((one,) if one else ()), *((two,) if len(two) > len(one) else ())]
 
 
 def rationalised(node: Node, ctx: Context) -> list[Node]:
@@ -338,20 +341,23 @@ def rationalised(node: Node, ctx: Context) -> list[Node]:
     (numpy's `where` computes both)."""
     if node.kind not in ("add", "sub"):
         return []
-    opened = _names_to_a_root(node, ctx)
-    if not opened:
-        return []
     try:
-        tr = ctx.translate(node, opened)
-        parts = _root_term(tr.expr)
-        if parts is None:
+        for opened in _openings_to_a_root(node, ctx):
+            tr = ctx.translate(node, opened)
+            parts = _root_term(tr.expr)
+            if parts is not None:
+                break
+        else:
             return []
         k, p, r = parts
         forms = once_with_budget(_normal_forms, (k * k * p - r * r,), SYMPY_SECONDS)
         if not forms:
             return []
-        num = sym.from_sympy(forms[0], tr)
-        den = sym.from_sympy(k * sp.sqrt(p) - r, tr)
+        top, bottom = forms[0], k * sp.sqrt(p) - r
+        if top.could_extract_minus_sign() and bottom.could_extract_minus_sign():
+            top, bottom = -top, -bottom  # −d²/−(a + √P) as d²/(a + √P)
+        num = sym.from_sympy(top, tr)
+        den = sym.from_sympy(bottom, tr)
         product = sym.from_sympy(r * k, tr)  # R against k: they cancel where its sign is negative
     except (OverBudget, RuntimeError, ValueError, TypeError, RecursionError, AttributeError, sym.Untranslatable):
         return []
