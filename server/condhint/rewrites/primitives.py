@@ -306,18 +306,21 @@ def quarter_turns(node: Node, ctx: Context) -> list[Node]:
     return out[:MAX_CANDIDATES]
 
 
-# ---- a square root against the other terms, after opening names two levels ---------------------------------------
+# ---- a square root against the other terms, behind up to two levels of names ---------------------------------------
 def _root_term(e: Expr) -> tuple[Expr, Expr, Expr] | None:
     """(k, P, R) with e = k·sqrt(P) + R, exactly one term of e holding a square root."""
+    def is_root(f: Expr) -> bool:
+        return bool(f.is_Pow and f.exp == sp.Rational(1, 2))
+
     if not e.is_Add:
         return None
-    found = [t for t in e.args if any(f.is_Pow and f.exp == sp.Rational(1, 2) for f in sp.Mul.make_args(t))]
+    found = [t for t in e.args if any(is_root(f) for f in sp.Mul.make_args(t))]
     if len(found) != 1:
         return None
     term = found[0]
-    root = next(f for f in sp.Mul.make_args(term) if f.is_Pow and f.exp == sp.Rational(1, 2))
+    root = next(f for f in sp.Mul.make_args(term) if is_root(f))
     k = term / root
-    if k.has(sp.Pow) and any(f.is_Pow and f.exp == sp.Rational(1, 2) for f in sp.preorder_traversal(k)):
+    if any(is_root(f) for f in sp.preorder_traversal(k)):
         return None
     return k, root.base, e - term
 
@@ -334,9 +337,11 @@ def _openings_to_a_root(node: Node, ctx: Context) -> list[tuple[Node, ...]]:
 
 
 def rationalised(node: Node, ctx: Context) -> list[Node]:
-    """k·sqrt(P) + R as (k²P − R²)/(k·sqrt(P) − R), the numerator normalised by sympy with the target's names
-    opened two levels, so that `lambda1 - a` with `lambda1 = (a + c)*0.5 + delta` and
-    `delta = (((a - c)*0.5)**2 + b*b)**0.5` becomes `b**2/(delta - (c/2 - a/2))`: exact where the terms cancel.
+    """k·sqrt(P) + R as (k²P − R²)/(k·sqrt(P) − R), the numerator normalised by sympy with as few of the target's
+    names opened as show the root (`_openings_to_a_root`), so that `lambda1 - a` with
+    `lambda1 = (a + c)*0.5 + delta` and `delta = (((a - c)*0.5)**2 + b*b)**0.5` becomes
+    `b * b / (a / 2 + delta - c / 2)`: exact where the terms cancel. The named rules `sqrt-minus-term` and
+    `conjugate` find the shapes written out in the code without sympy; this one finds those behind names.
     Where R's sign against k varies, a branch keeps the form as written where they add, dividing by 1 there
     (numpy's `where` computes both)."""
     if node.kind not in ("add", "sub"):
