@@ -11,7 +11,7 @@ import pytest
 from condhint.config import Config
 from condhint.fixing import attach_fixes
 from condhint.engine import analyse_module
-from condhint.rewrites import apply_fixes
+from condhint.rewrites import apply_fixes, codegen
 from condhint.rewrites.codegen import Unspellable
 from condhint.rewrites.rules import BY_ID
 from tests.rewrites.support import analysed, best_fix, context_for, fixable, fixes_of, site_with
@@ -187,3 +187,10 @@ def test_python_code_makes_a_repeated_choice_once():
                    "    return math.atan2(major - a, b)\n")
     assert fix.rule == "rationalise"
     assert fix.replacement == "b * b / (a / 2 + delta - c / 2) if c / 2 - a / 2 < 0 else major - a"
+
+
+def test_a_text_continued_over_lines_is_a_place_to_replace_but_not_text_to_reuse():
+    # `a\n + b` reads as an expression only inside the brackets around it in the source (Python's grammar): a fix
+    # may replace it there, but text reused inside a fix must read alone wherever the fix puts it.
+    assert not codegen.is_expression("a\n    + b") and codegen.is_expression("a\n    + b", bracketed=True)
+    assert codegen.is_expression("f(a,\n  b)") and not codegen.is_expression("a +", bracketed=True)

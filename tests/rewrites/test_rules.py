@@ -271,7 +271,7 @@ CASES = [
          [(1 + float(d),) for d in np.geomspace(1e-12, 1e-3, 25)], "NIST DLMF 4.14, 4.21 (shifts by π/2)"),
     # A square root times a factor, cancelling against a term (an invented gap formula): multiplied by the
     # conjugate, the numerator a² − t²·(a²/t² − c) simplifies to c·t² exactly.
-    Case("conjugate", "import numpy as np\n"
+    Case("rationalise", "import numpy as np\n"
          "def gap(a, c, t):  # condhint: 1e3 <= a <= 1e4, 1 <= c <= 2, 1 <= t <= 2\n"
          "    return a - t * np.sqrt(a * a / (t * t) - c)\n",
          "c * (t * t) / (a + t * np.sqrt(a * a / (t * t) - c))", [],
@@ -493,7 +493,7 @@ MUST_NOT_FIRE = [
     ("rationalise", "def f(a, b, c):  # condhint: 1e3 <= a <= 1e4, 1e-6 <= b <= 1e-3, 1 <= c <= 10\n"
      "    delta = (((a - c) * 0.5) ** 2 + b * b) ** 0.5\n    return (a + c) * 0.5 + delta - c\n",
      "(a + c) * 0.5 + delta - c", "measured"),  # the terms add: the branch never takes the quotient
-    ("conjugate", "import math\ndef f(a, c, t):  # condhint: 1e3 <= a <= 1e4, 1 <= c <= 2, 1 <= t <= 2\n"
+    ("rationalise", "import math\ndef f(a, c, t):  # condhint: 1e3 <= a <= 1e4, 1 <= c <= 2, 1 <= t <= 2\n"
      "    return a + t * math.sqrt(a * a / (t * t) - c)\n", "a + t * math.sqrt(a * a / (t * t) - c)",
      "measured"),  # the terms add: the branch never takes the conjugate, nothing is gained
     ("quarter-turn", "import numpy as np\ndef f(x):  # condhint: 1.5 <= x <= 1.65\n    return np.cos(x)\n", "np.cos(x)",
@@ -671,7 +671,7 @@ def test_an_expression_continued_over_lines_inside_brackets_is_fixed_in_place():
     source = ("import numpy as np\n\n\ndef gap(a, c, t):  # condhint: 1e3 <= a <= 1e4, 1 <= c <= 2, 1 <= t <= 2\n"
               "    return (a\n            - t * np.sqrt(a * a / (t * t) - c))\n")
     _, fixes, _ = fixes_of(source)
-    assert fixes[0].rule == "conjugate" and fixes[0].span.line == 5 and fixes[0].span.end_line == 6
+    assert fixes[0].rule == "rationalise" and fixes[0].span.line == 5 and fixes[0].span.end_line == 6
     patched = apply_fixes(source, fixes[:1])
     assert "return (c * (t * t) / (a + t * np.sqrt(a * a / (t * t) - c)))\n" in patched
     ast.parse(patched)
@@ -688,8 +688,8 @@ def test_a_conjugate_branch_divides_by_one_where_it_is_not_taken():
                            "def g32(h2, k2):  # condhint: 1e-4 <= h2 <= 10, 1e-4 <= k2 <= 10\n"
                            f"    return ({a}\n            + sqrt(4*(h2**2 + k2**2) - 7*h2*k2)*({b}))\n")
     fix = fixes[0]
-    assert fix.rule == "conjugate"
-    assert fix.replacement.startswith(f"np.where(({a}) * ({b}) < 0, 375 * h2**2 * k2**2 * (h2 - k2) ** 2 * ")
+    assert fix.rule == "rationalise"
+    assert fix.replacement.startswith(f"np.where(({b}) * ({a}) < 0, 375 * h2**2 * k2**2 * (h2 - k2) ** 2 * ")
     assert ", 1), " in fix.replacement
 
     def fixed(h2: float, k2: float) -> float:  # the fix as written above, both branches computed as numpy does

@@ -36,7 +36,8 @@ def reference_values(nodes: list[Node], cols: dict[str, np.ndarray], m: int, dea
             vals = forward(nodes, cols, MP_BACKEND, m, deadline)
             cur = vals[id(root)]
             if prev is not None:
-                ok = all(_agree(a, b, dps >= zeros_settle) for a, b in zip(prev, cur))
+                with mpmath.workdps(dps):
+                    ok = all(_agree(a, b, dps >= zeros_settle) for a, b in zip(prev, cur))
                 if ok or dps >= 1280:
                     return vals, dps
         prev = cur

@@ -103,9 +103,10 @@ def _decided(node: Node, cond: Node, side: int) -> Node:
     return node
 
 
-def is_expression(text: str) -> bool:
-    """Whether `text` reads as one expression, also one continued over lines inside the brackets around it."""
-    for t in (text.strip(), f"({text.strip()})"):
+def is_expression(text: str, bracketed: bool = False) -> bool:
+    """Whether `text` reads as one expression; with `bracketed`, also one continued over lines inside the
+    brackets around it (a place to replace; text reused inside a fix must read alone)."""
+    for t in (text.strip(), *((f"({text.strip()})",) if bracketed else ())):
         try:
             ast.parse(t, mode="eval")
             return True

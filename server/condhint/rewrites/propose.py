@@ -184,7 +184,7 @@ def fixes_for(subject: Subject, cfg: Config, seconds: float = SECONDS_PER_FINDIN
 
     def replaceable(n: Node) -> bool:
         return n.span is not None and bool(n.text) and source.segment(n.span) == n.text and \
-            codegen.is_expression(n.text)
+            codegen.is_expression(n.text, bracketed=True)
 
     tgts = targets(site, finding, culprit, replaceable)
     if not tgts:

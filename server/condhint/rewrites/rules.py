@@ -153,41 +153,6 @@ SQRT_AND_TERM = Rule(
     "common practice (multiply by the conjugate)", _sqrt_and_term, _sqrt_and_term_build)
 
 
-def _conjugate_match(node: Node) -> Match | None:
-    """a + b·sqrt(p) (either order, either sign) where the square root is a factor of a product."""
-    terms = dag.signed_terms(node)
-    if terms is None:
-        return None
-    for (sa, a), (sb, prod) in (terms, terms[::-1]):
-        if prod.kind == "mul" and dag.sqrt_of(a) is None:
-            for i, f in enumerate(prod.args):
-                p = dag.sqrt_of(f)
-                if p is not None and dag.sqrt_of(prod.args[1 - i]) is None:
-                    return {"a": a if sa == 1 else dag.negated(a), "b": prod.args[1 - i], "sb": sb, "p": p,
-                            "term": prod, "node": node}
-    return None
-
-
-def _conjugate_build(m: Match, ctx: Context) -> list[Node]:
-    """(a² − b²·p)/(a − b·sqrt(p)), the numerator simplified with a, b and p opened: exact where a and b·sqrt(p)
-    cancel (a·b·sb < 0). Where the sign of a·b varies, a branch keeps the form as written elsewhere; its
-    quotient divides by 1 there, because numpy's `where` computes both branches and the denominator is 0 where
-    the terms add and are equal (h2 = k2 in scipy's elliptic-harmonic constants)."""
-    a, b, p, sb = m["a"], m["b"], m["p"], m["sb"]
-    num = ctx.simplest(dag.sub(dag.mul(a, a), dag.mul(dag.mul(b, b), p)), (a, b, p))
-    den = dag.sub(a, m["term"]) if sb == 1 else dag.add(a, m["term"])
-    ab = dag.mul(a, b)
-    if ctx.sign(ab) == -sb:
-        return [dag.div(num, den)]
-    cancels = dag.compare(ab, "<" if sb == 1 else ">", dag.const(0))
-    return [dag.select(cancels, dag.div(num, dag.select(cancels, den, dag.const(1))), m["node"])]
-
-
-CONJUGATE = Rule(
-    "conjugate", "Multiply a + b·sqrt(p) by its conjugate", "p ≥ 0; applied where a and b·sqrt(p) cancel",
-    "common practice (multiply by the conjugate)", _conjugate_match, _conjugate_build)
-
-
 def _hypot_match(node: Node) -> Match | None:
     arg = dag.unary(node, "sqrt")
     if arg is None or arg.kind != "add":
@@ -475,7 +440,7 @@ RULES: tuple[Rule, ...] = (  # specific identities first, general algebra last
     QUADRATIC_ROOT, ASINH, *ANGLE_RULES, LOGADDEXP, HYPOT, *OVERFLOW_RULES,
     COMPOUND_POWER, LOG_DIFFERENCE, EXP_DIFFERENCE, ONE_MINUS_COS, COS_MINUS_ONE, TAN_MINUS_SIN, COS_DIFFERENCE,
     SIN_DIFFERENCE, ERF_DIFFERENCE, EXPM1, LOG1P, NEAR_ONE_DIFFERENCE, LOG_NEAR_ONE, QUARTER_TURN, SQRT_DIFFERENCE,
-    SQRT_AND_TERM, CONJUGATE, RATIONALISED,
+    SQRT_AND_TERM, RATIONALISED,
     COMBINE_FRACTIONS, QUOTIENT_MINUS_ONE, DIFFERENCE_OF_SQUARES, LOG_SUM_EXP, LOG2, EXP2,
 )
 BY_ID = {r.id: r for r in RULES}
