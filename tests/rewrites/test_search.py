@@ -10,7 +10,7 @@ import mpmath
 import numpy as np
 
 from condhint.rewrites.search import series_node, series_variable
-from tests.rewrites.support import analysed, best_fix, site_with, worst_loss
+from tests.rewrites.support import analysed, best_fix, digits_lost, site_with, worst_loss
 
 
 def _taylor_x_minus_sin(x: float, terms: int) -> float:
@@ -109,3 +109,69 @@ def test_sympy_finds_the_square_inside_a_root():
     exact = lambda x, y: mpmath.sqrt(x * x - 2 * x * y + y * y)  # noqa: E731
     before = worst_loss(lambda x, y: math.sqrt(max(x * x - 2 * x * y + y * y, 0.0)), exact, pts)
     assert before >= 4 and worst_loss(lambda x, y: abs(x - y), exact, pts) <= 0.3
+
+
+def test_maclaurin_polynomial_of_a_polynomial_in_log1p_matches_mpmath():
+    # The numerator of a Bradford-type kurtosis: a polynomial in c and k = log(1 + c) whose terms cancel up to
+    # c**7. The ring series gives it in a fraction of sympy's `series` time; its coefficients are checked
+    # against mpmath's numerical Taylor coefficients (mpmath.taylor, 50 digits).
+    import sympy as sp
+
+    from condhint.rewrites.search import _maclaurin
+
+    c = sp.Symbol("c", positive=True)
+    k = sp.log(1 + c)
+    expr = c**3*(k-3)*(k*(3*k-16)+24) + 12*k*c*c*(k-4)*(k-3) + 6*c*k*k*(3*k-14) + 12*k**3
+    poly = sp.Poly(_maclaurin(expr, c, 12), c)
+    with mpmath.workdps(50):
+        def f(x):
+            kk = mpmath.log(1 + x)
+            return x**3*(kk-3)*(kk*(3*kk-16)+24) + 12*kk*x*x*(kk-4)*(kk-3) + 6*x*kk*kk*(3*kk-14) + 12*kk**3
+        numeric = mpmath.taylor(f, 0, 11)
+    for power in range(12):
+        exact = poly.coeff_monomial(c**power)
+        assert abs(float(exact) - float(numeric[power])) <= 1e-20 + 1e-12 * abs(float(numeric[power])), power
+    assert poly.coeff_monomial(c**7) == sp.Rational(-1, 10)
+    assert all(poly.coeff_monomial(c**p) == 0 for p in range(7))
+
+
+def test_maclaurin_falls_back_where_the_ring_series_gives_no_polynomial():
+    import sympy as sp
+
+    from condhint.rewrites.search import _maclaurin
+
+    u = sp.Symbol("u", positive=True)
+    # 1 − 2u + 2u² − … (geometric series, from memory); the ring series returns (1 − u)/(1 + u) unexpanded
+    assert sp.expand(_maclaurin((1 - u) / (1 + u), u, 4)) == 1 - 2*u + 2*u**2 - 2*u**3
+
+
+def test_a_series_that_leaves_part_of_the_loss_is_offered_and_measured():
+    # An invented entropy of the form k/2 − log(c/k), k = log(1 + c): both terms are near c/2 for small c. A
+    # Maclaurin series in c can only cover |c| < 1 (log(1 + c) has its singularity at −1), and beyond its
+    # switch point the formula as written still loses some digits: the fix is kept because it makes the
+    # loss smaller by far, and the finding stays with what is left.
+    from tests.trust.mp_eval import f64_value
+
+    src = ("import numpy as np\n"
+           "def entropy(c):  # condhint: 1e-8 <= c <= 10\n"
+           "    k = np.log(1.0 + c)\n"
+           "    return k/2.0 - np.log(c/k)\n")
+    fix = best_fix(src)
+    assert fix.rule == "series"
+    m = re.fullmatch(r"np\.where\(abs\(c\) < (?P<cut>[0-9.e-]+), (?P<series>.*), k/2\.0 - np\.log\(c/k\)\)",
+                     fix.replacement)
+    assert m, fix.replacement
+    assert 1e-3 <= float(m["cut"]) <= 0.5
+    # −c²/24 + c³/24 − …: the leading terms by hand (log(1 + c) = c − c²/2 + c³/3 − …, NIST DLMF 4.6.1)
+    assert m["series"].startswith("-(c ** 2 / 24) + c ** 3 / 24")
+
+    def exact(c: float) -> mpmath.mpf:
+        k = mpmath.log1p(mpmath.mpf(c))
+        return k / 2 - mpmath.log(mpmath.mpf(c) / k)
+
+    pts = [float(t) for t in np.geomspace(1e-8, 10, 60)]
+    binding = {"k": "np.log(1.0 + c)"}
+    with mpmath.workdps(60):
+        before = max(digits_lost(f64_value("k/2.0 - np.log(c/k)", {"c": c}, binding), exact(c)) for c in pts)
+        after = max(digits_lost(f64_value(fix.replacement, {"c": c}, binding), exact(c)) for c in pts)
+    assert before >= 12 and after <= before - 6, (before, after)
