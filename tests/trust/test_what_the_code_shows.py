@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import textwrap
 
+import numpy as np
+
 import pytest
 
 from condhint.config import Config
@@ -51,9 +53,9 @@ def test_what_the_code_uses_as_an_integer_is_exact(header: str, body: str) -> No
 
 
 @pytest.mark.parametrize("value", ["np.argmax(a)", "a.nonzero()[0].max() + 1", "np.arange(10)[3]", "round(a)",
-                                   "math.comb(a, 3)", "len(a) // 2"])
+                                   "math.comb(a, 3)", "len(a) // 2", "operator.index(a)", "pu._as_int(a, 'deg')"])
 def test_calls_that_return_integers_are_exact(value: str) -> None:
-    src = f"import math\nimport numpy as np\ndef f(a, b):\n    n = {value}\n    m = np.argmin(b)\n" \
+    src = f"import math\nimport operator\nimport numpy as np\ndef f(a, b):\n    n = {value}\n    m = np.argmin(b)\n" \
           "    return (n + m * 1.0) - n\n"
     assert codes(src) == []
 
@@ -339,3 +341,13 @@ def test_a_numpydoc_type_line_of_int_makes_an_integer(kind: str, fires: bool) ->
             return {CANCELS}
     '''
     assert (codes(src) == ["CH101"]) is fires
+
+
+def test_a_guarded_integer_is_sampled_at_whole_numbers() -> None:
+    # `n <= 0` raises, so n ≥ 1: an integer is never sampled between 0 and 1 (where 1/n would be huge)
+    from condhint.numeric.sampling import sample
+    from condhint.site import InputRange, Interval
+
+    ranges = {"n": InputRange(Interval(0.0, float("inf"), low_open=True), "guard", 3, None, None, True)}
+    cols, bounds = sample(ranges, ["n"], 64, 0, (1e-6, 1e6))
+    assert bounds["n"][0] == 1.0 and np.all(cols["n"] >= 1) and np.all(cols["n"] == np.round(cols["n"]))
