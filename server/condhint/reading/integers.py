@@ -16,8 +16,7 @@ import ast
 _INT_ANNOTATIONS = {"int", "int8", "int16", "int32", "int64", "intp", "uint8", "uint16", "uint32", "uint64", "uint",
                     "integer", "signedinteger", "unsignedinteger", "Integral"}
 _INT_RESULTS = {"argmax", "argmin", "argsort", "nonzero", "flatnonzero", "searchsorted", "count_nonzero",
-                "comb", "perm", "factorial", "gcd", "lcm", "isqrt", "bit_length", "indices", "digitize",
-                "index", "as_int", "to_int", "asint"}  # `operator.index(n)`; helpers named for it (`pu._as_int(deg)`)
+                "comb", "perm", "factorial", "gcd", "lcm", "isqrt", "bit_length", "indices", "digitize"}
 _COUNT_ARGUMENTS = {"range": None, "comb": None, "perm": None, "factorial": None, "zeros": 0, "ones": 0,
                     "empty": 0, "full": 0, "eye": None, "identity": 0, "tile": 1, "repeat": 1}
 
@@ -43,7 +42,7 @@ def returns_int(call: ast.Call) -> bool:
     `np.arange(n)` with integer arguments (see `used_as_integers` for names), `round(x)` without digits."""
     f = call.func
     name = f.attr if isinstance(f, ast.Attribute) else f.id if isinstance(f, ast.Name) else ""
-    if name.lstrip("_") in _INT_RESULTS:
+    if name in _INT_RESULTS:
         return True
     if name == "round":
         return len(call.args) == 1 and not call.keywords
