@@ -223,3 +223,34 @@ def test_the_switch_is_where_the_original_no_longer_loses_two_digits():
     assert worst_loss(stable, exact, pts) <= 1.5
     # why a switch at 0.2 was not enough: just past it the original loses more than two digits
     assert worst_loss(plain, exact, [(float(t),) for t in np.linspace(0.2, 0.25, 200)]) >= 2.0
+
+
+def test_a_power_whose_base_may_be_negative_keeps_the_code_there():
+    # 1 − b**c with b = (1 − q)/(1 + q) near 1 is −expm1(c·log1p(b − 1)) only where b > 0: with a whole c the
+    # code also computes negative bases (q > 1), and there the fix must compute what the code computes. The
+    # guard inside log1p keeps numpy's `where`, which evaluates both sides, from taking log1p(−2).
+    from tests.trust.mp_eval import f64_value, mp_value
+
+    src = ("import numpy as np\n"
+           "def quantile(q, c: int):  # condhint: -0.5 <= q <= 2, 1 <= c <= 4\n"
+           "    return 1.0/c*(1-((1.0-q)/(1.0+q))**c)\n")
+    fix = best_fix(src)
+    assert fix.rule == "near-one-difference"
+    # (on 0 < q < 1 alone, the declared range settles the guard: `-np.expm1(c * np.where(q / (1.0+q) < 0.25, …`)
+    # log1p only near its zero (elsewhere 1 + d cancels inside it, near q = 1), log where the base is far from 1
+    assert fix.replacement == ("-np.where(0 < (1.0-q)/(1.0+q), np.expm1(c * np.where(abs(q / (1.0+q)) < 0.25, "
+                               "np.log1p(np.where(0 < (1.0-q)/(1.0+q), -(2 * q / (1.0+q)), 0)), "
+                               "np.log(np.where(0 < (1.0-q)/(1.0+q), (1.0-q)/(1.0+q), 1)))), ((1.0-q)/(1.0+q))**c - 1)")
+    written = "1-((1.0-q)/(1.0+q))**c"
+    with np.errstate(all="raise"):  # no floating-point exception in the side not taken
+        for q in (1.1, 1.5, 2.0):
+            for c in (1.0, 2.0, 3.0):  # negative bases with whole exponents: exactly the code's value
+                assert f64_value(fix.replacement, {"q": q, "c": c}) == f64_value(written, {"q": q, "c": c})
+    with mpmath.workdps(60):  # small q: cancellation in the code, none in the fix (Goldberg 1991, log1p/expm1)
+        for q, c in ((1e-12, 1.0), (3e-10, 2.0), (-2e-11, 3.0)):
+            exact = mp_value(written, {"q": q, "c": c})
+            assert abs(f64_value(fix.replacement, {"q": q, "c": c}) / exact - 1) < 1e-14
+            assert abs(f64_value(written, {"q": q, "c": c}) / exact - 1) > 1e-9
+        for q, c in ((0.999999, 1.0), (0.999999, 3.0), (-0.5, 2.0)):  # far from the cancellation: as good
+            exact = mp_value(written, {"q": q, "c": c})
+            assert abs(f64_value(fix.replacement, {"q": q, "c": c}) / exact - 1) < 1e-15

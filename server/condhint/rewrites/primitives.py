@@ -38,17 +38,23 @@ def _log1p() -> Any:
     return sym.named("log1p")
 
 
-def log_of(base: Expr, branch: bool = False) -> Expr:
+def log_of(base: Expr, branch: bool = False, guard: Expr = sp.true) -> Expr:
     """log(base) without cancellation: `log1p(base − 1)` when `base − 1` normalises to something other than
     itself (`1 + x` gives `log1p(x)`, `(1 − q)/(1 + q)` gives `log1p(−2q/(1 + q))`, `x` stays `log(x)`).
     `log1p(d)` is only good near d = 0: far from it (a base near 0) `1 + d` cancels inside log1p where `base` may
-    be exact. `branch` writes the choice out: log1p(d) where |d| < 1/2, log(base) elsewhere."""
+    be exact. `branch` writes the choice out: log1p(d) where |d| < 1/2, log(base) elsewhere. Where `guard` is
+    false, the result is not used: the logarithm is then of 1 (numpy's `where` computes both sides)."""
     near = [f for f in _normal_forms(base - 1) if f.as_coeff_Add()[0] == 0]
     if not near:
-        return sp.log(base)
+        return sp.log(_where(guard, base, 1))
     d = near[0]
-    return sp.Piecewise((_log1p()(d), sp.Abs(d) < sp.Rational(1, 2)), (sp.log(base), True)) if branch \
-        else _log1p()(d)
+    safe = _log1p()(_where(guard, d, 0))
+    return sp.Piecewise((safe, sp.Abs(d) < sp.Rational(1, 2)), (sp.log(_where(guard, base, 1)), True)) if branch \
+        else safe
+
+
+def _where(cond: Expr, then: Expr, otherwise: Expr) -> Expr:
+    return then if cond == sp.true else sp.Piecewise((then, cond), (otherwise, True))
 
 
 def _log1p_direct(e: Expr) -> Expr:
@@ -81,7 +87,7 @@ def _factor_over_atoms(e: Expr) -> Expr:
     return sp.factor(e.xreplace(there)).xreplace(back)
 
 
-def _exponent(t: Expr, branch: bool = False) -> Expr | None:
+def _exponent(t: Expr, branch: bool = False, guard: Expr = sp.true) -> Expr | None:
     """L with t = exp(L) for a power, an exponential or a product of them; None otherwise."""
     if isinstance(t, sp.exp):
         return t.args[0]
@@ -91,19 +97,34 @@ def _exponent(t: Expr, branch: bool = False) -> Expr | None:
             return e
         if base.is_number:
             return e * sp.log(base) if base.is_positive else None
-        return e * log_of(base, branch)
+        return e * log_of(base, branch, guard)
     if t.is_Mul:
-        parts = [_exponent(f, branch) for f in sp.Mul.make_args(t)]
+        parts = [_exponent(f, branch, guard) for f in sp.Mul.make_args(t)]
         return sp.Add(*parts) if all(p is not None for p in parts) and len(parts) > 1 else None
     return None
 
 
+def _unsure_base(t: Expr) -> Expr | None:
+    """The one base that may be negative of a power with a symbolic exponent in t, if any: the exponent may
+    be whole where the base is negative, and the code computes b**c there (b**0.5 is undefined there anyway)."""
+    bases = {f.base for f in sp.Mul.make_args(t)
+             if f.is_Pow and f.base is not sp.E and not f.exp.is_number and not f.base.is_number
+             and f.base.is_positive is not True}
+    return bases.pop() if len(bases) == 1 else None
+
+
 def minus_one(t: Expr, branch: bool = False) -> Expr | None:
-    """t − 1 without cancellation for t = exp(L), a power or cos(u); None when t is none of these."""
+    """t − 1 without cancellation for t = exp(L), a power or cos(u); None when t is none of these. Where a
+    power's base may be negative, b**c − 1 is kept as written there: `expm1(c·log b)` is only b**c − 1 for b > 0."""
     if isinstance(t, sp.cos):
         return -2 * sp.sin(t.args[0] / 2) ** 2
-    L = _exponent(t, branch)
-    return None if L is None else _expm1()(L)
+    base = _unsure_base(t)
+    if base is None:
+        L = _exponent(t, branch)
+        return None if L is None else _expm1()(L)
+    positive = sp.StrictLessThan(0, base, evaluate=False)
+    L = _exponent(t, branch, positive)
+    return None if L is None else sp.Piecewise((_expm1()(L), positive), (t - 1, True))
 
 
 def _with_primitives(e: Expr) -> Expr:
@@ -231,7 +252,7 @@ def candidates(node: Node, ctx: Context, kind: str) -> list[Node]:
                 out.append(sym.from_sympy(form, tr))
             except (sym.Untranslatable, ValueError, TypeError):
                 continue
-    out = [c for c in out if any(n.kind in ("expm1", "log1p", "sin") for n in topological(c))]
+    out = [_settled(c, ctx) for c in out if any(n.kind in ("expm1", "log1p", "sin") for n in topological(c))]
     if kind == "logs":
         out += [b for c in out if (b := _branch_near_one(c, node)) is not None]
     if codegen.call_inputs(node):
@@ -239,19 +260,36 @@ def candidates(node: Node, ctx: Context, kind: str) -> list[Node]:
     return [c for c in out if not _log1p_far_from_zero(c, ctx)]
 
 
+def _settled(candidate: Node, ctx: Context) -> Node:
+    """The candidate with each guard (`minus_one`'s, that a power's base is positive) that holds on every
+    sample taken as decided: b**c − 1 is then only expm1(c·log b)."""
+    def holds(cond: Node) -> bool:
+        with np.errstate(all="ignore"):
+            return bool(np.all(ctx.bench.values(cond) == 1))
+    while (sel := next((n for n in topological(candidate) if n.kind == SELECT and holds(n.args[0])), None)):
+        candidate = dag.substitute(candidate, sel, sel.args[1], by_key=True)
+    return candidate
+
+
 def _log1p_far_from_zero(candidate: Node, ctx: Context) -> bool:
     """Whether an unbranched log1p(d) of the candidate sees |d| ≥ 1/2 on the samples: there 1 + d may cancel (a
     logarithm of a value near 0) and between samples it may cancel badly (log cos t near t = π/2); the candidate
     with the branch is proposed instead."""
     nodes = topological(candidate)
-    guarded = {id(x) for n in nodes if n.kind == SELECT for x in topological(n.args[1])}  # under a branch taken
-    for n in nodes:                                                                      # only where it is near 0
+    guarded = {id(x) for n in nodes if n.kind == SELECT and _near_zero_test(n.args[0])  # under a branch taken
+               for x in topological(n.args[1])}                                        # only where it is near 0
+    for n in nodes:
         if n.kind == "log1p" and id(n) not in guarded:
             with np.errstate(all="ignore"):
                 v = ctx.bench.values(n.args[0])
             if np.any(np.abs(v[np.isfinite(v)]) >= 0.5):
                 return True
     return False
+
+
+def _near_zero_test(cond: Node) -> bool:
+    """`abs(d) < 1/2` (or sympy's form of it on a signed range, `q / (1 + q) < 1/4`), not a guard `0 < b`."""
+    return not dag.is_const(cond.args[0], 0)
 
 
 def _branch_near_one(candidate: Node, original: Node) -> Node | None:

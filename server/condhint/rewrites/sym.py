@@ -156,8 +156,8 @@ def _build(e: Any, go: Callable[[Any], Node], tr: Translation) -> Node:
         return dag.call("log", go(e.args[0]))
     if isinstance(e, sp.Piecewise) and len(e.args) == 2 and e.args[1].cond == sp.true:
         (then, cond), (otherwise, _) = e.args
-        if isinstance(cond, sp.StrictLessThan):
-            return dag.select(dag.compare(go(cond.lhs), "<", go(cond.rhs)), go(then), go(otherwise))
+        if isinstance(cond, (sp.StrictLessThan, sp.StrictGreaterThan)):
+            return dag.select(dag.compare(go(cond.lts), "<", go(cond.gts)), go(then), go(otherwise))
         raise Untranslatable(f"condition {type(cond).__name__}")
     if isinstance(e, sp.Abs):
         return dag.call("abs", go(e.args[0]))
