@@ -12,6 +12,7 @@ from typing import TYPE_CHECKING, Callable
 from condhint.findings import Finding, Fix
 from condhint.kinds import FIXABLE_CATEGORIES
 from condhint.rewrites.apply import apply_fixes
+from condhint.rewrites.verify import MIN_GAIN
 
 if TYPE_CHECKING:
     from condhint.engine import ModuleAnalysis
@@ -43,10 +44,12 @@ def _reported(ma: "ModuleAnalysis") -> list[Reported]:
 
 def rechecked(fixes: list[Fix], finding: Finding, index: "ModuleIndex",
               reanalyse: Callable[[str], "ModuleAnalysis"]) -> list[Fix]:
-    """The fixes (at most `RECHECKED`, in order) whose patched code re-analyses without `finding` and without
-    a new fixable finding. A finding on another expression counts as new unless that expression lost as much
-    in the original code: there its loss was reported under an operation the fix has made accurate
-    (`np.sqrt(1 - x*x)` after `x`'s own formula is fixed)."""
+    """The fixes (at most `RECHECKED`, in order) whose patched code re-analyses without `finding`, or with it
+    at least `MIN_GAIN` digits smaller, and without a new fixable finding. The finding may stay where the fix
+    keeps the formula as written for part of the range (a series below a switch point, the code beyond it,
+    where it still loses some digits). A finding on another expression counts as new unless that expression
+    lost as much in the original code: there its loss was reported under an operation the fix has made
+    accurate (`np.sqrt(1 - x*x)` after `x`'s own formula is fixed)."""
     if not fixes:
         return []
     line = finding.span.line
@@ -68,10 +71,14 @@ def rechecked(fixes: list[Fix], finding: Finding, index: "ModuleIndex",
             continue
         now = _reported(again)
         after = Counter(k for k, _, _ in now)
-        if after[own] >= before[own]:
+        if after[own] >= before[own] and _worst(now, own) > _worst(first, own) - MIN_GAIN:
             continue
         gained = after - before
         if any(k in gained and (site is None or losses.get(site, -1.0) + NOISE < lost) for k, site, lost in now):
             continue
         out.append(fix)
     return out
+
+
+def _worst(reported: list[Reported], key: tuple[str, str, str]) -> float:
+    return max((lost for k, _, lost in reported if k == key), default=0.0)
