@@ -4,8 +4,6 @@ from __future__ import annotations
 
 import textwrap
 
-import numpy as np
-
 import pytest
 
 from condhint.config import Config
@@ -341,13 +339,3 @@ def test_a_numpydoc_type_line_of_int_makes_an_integer(kind: str, fires: bool) ->
             return {CANCELS}
     '''
     assert (codes(src) == ["CH101"]) is fires
-
-
-def test_a_guarded_integer_is_sampled_at_whole_numbers() -> None:
-    # `n <= 0` raises, so n ≥ 1: an integer is never sampled between 0 and 1 (where 1/n would be huge)
-    from condhint.numeric.sampling import sample
-    from condhint.site import InputRange, Interval
-
-    ranges = {"n": InputRange(Interval(0.0, float("inf"), low_open=True), "guard", 3, None, None, True)}
-    cols, bounds = sample(ranges, ["n"], 64, 0, (1e-6, 1e6))
-    assert bounds["n"][0] == 1.0 and np.all(cols["n"] >= 1) and np.all(cols["n"] == np.round(cols["n"]))

@@ -84,9 +84,6 @@ def sample(ranges: dict[str, InputRange], names: list[str], n: int, seed: int,
     for name in names:
         if ranges[name].is_int and ranges[name].source == "default":
             bounds[name] = (max(bounds[name][0], 1.0), max(bounds[name][1], 1.0))  # counts and sizes
-        elif ranges[name].is_int:  # the whole numbers in the range: `n > 0` is n ≥ 1
-            lo, hi = math.ceil(bounds[name][0]), math.floor(bounds[name][1])
-            bounds[name] = (float(lo), float(hi)) if lo <= hi else bounds[name]
     for k, name in enumerate(names):
         lo, hi = bounds[name]
         # values the code spells out (a grid, a literal array) are spread evenly like the grid, not by magnitude
