@@ -261,8 +261,9 @@ def candidates(node: Node, ctx: Context, kind: str) -> list[Node]:
 
 
 def _settled(candidate: Node, ctx: Context) -> Node:
-    """The candidate with each guard (`minus_one`'s, that a power's base is positive) that holds on every
-    sample taken as decided: b**c − 1 is then only expm1(c·log b)."""
+    """The candidate with each choice whose test holds on every sample taken as decided: a guard that a
+    power's base is positive (`minus_one`; b**c − 1 is then only expm1(c·log b)), or log1p's near-zero branch
+    (a plain log1p(d) is proposed where the samples keep |d| < 1/2 anyway)."""
     def holds(cond: Node) -> bool:
         with np.errstate(all="ignore"):
             return bool(np.all(ctx.bench.values(cond) == 1))
