@@ -209,6 +209,48 @@ def test_a_total_cancellation_is_resolved_beyond_two_zeros():
     assert abs(float(truth[0]) - 1.0867e-104) < 1e-107
 
 
+def test_each_sample_is_raised_in_precision_only_as_far_as_it_needs(monkeypatch):
+    # The same erf sum at a sample that cancels to 1e−104 and at an ordinary one: the second settles at 80
+    # digits and is not evaluated again, and every node's value at both samples is right (mpmath at 400 digits).
+    from condhint.expr import Node, topological
+    from condhint.numeric import reference
+    x, c = Node("input", name="x"), Node("input", name="c")
+    s = Node("sqrt", (Node("const", value=2.0, exact="2"),))
+    left = Node("erf", (Node("div", (Node("sub", (x, c)), s)),))
+    right = Node("erf", (Node("div", (Node("add", (x, c)), s)),))
+    root = Node("add", (left, right))
+    cols = {"x": np.array([0.207801, 0.5]), "c": np.array([21.937, 0.25])}
+    sizes: list[int] = []
+    real_forward = reference.forward
+    monkeypatch.setattr(reference, "forward", lambda nodes, cols, backend, m, deadline=None: (
+        backend is reference.MP_BACKEND and sizes.append(m), real_forward(nodes, cols, backend, m, deadline))[1])
+    vals, dps = reference.reference_values(topological(root), cols, 2, None, zeros_settle=reference.ZERO_SETTLED)
+    assert sizes[:2] == [2, 2] and set(sizes[2:]) == {1} and dps >= reference.ZERO_SETTLED
+    with mpmath.workdps(400):
+        for i, (a, b) in enumerate(zip(cols["x"], cols["c"])):
+            e1 = mpmath.erf((mpmath.mpf(a) - b) / mpmath.sqrt(2))
+            e2 = mpmath.erf((mpmath.mpf(a) + b) / mpmath.sqrt(2))
+            for node, truth in ((left, e1), (right, e2), (root, e1 + e2)):
+                assert abs(vals[id(node)][i] - truth) <= abs(truth) * mpmath.mpf(10) ** -20
+
+
+def test_a_term_lost_at_two_precisions_does_not_settle_the_sample():
+    # λe^−λ/C − log(C) with C = −expm1(−λ), at λ = 265 alone: at 40 and at 80 digits C is 1, so log(C) is 0 at
+    # both and they agree; the true value is e^−λ(λ/(1 − e^−λ) + …) ≈ 1.8281e−113 (mpmath at 400 digits). The
+    # sample's values span 117 orders of magnitude (265 and e^−265), so it cannot settle below ~140 digits.
+    from condhint.expr import Node, topological
+    from condhint.numeric.reference import reference_values
+    lam = Node("input", name="lam")
+    c = Node("neg", (Node("expm1", (Node("neg", (lam,)),)),))
+    root = Node("sub", (Node("div", (Node("mul", (lam, Node("exp", (Node("neg", (lam,)),)))), c)),
+                        Node("log", (c,))))
+    vals, _ = reference_values(topological(root), {"lam": np.array([265.0])}, 1, None)
+    with mpmath.workdps(400):
+        big_c = -mpmath.expm1(-mpmath.mpf(265))
+        truth = 265 * mpmath.exp(-265) / big_c - mpmath.log(big_c)
+        assert abs(vals[id(root)][0] - truth) <= abs(truth) * mpmath.mpf(10) ** -20
+
+
 def test_values_below_binary64_range_agree_once_zeros_would():
     # Below binary64's smallest subnormal (4.9e−324, IEEE 754) no result of the code can differ, so two
     # precisions that give 1e−340 and 3e−340 (or 0 and 1e−534, erf(−34.9) + erf(35.7)) need not be raised
