@@ -29,7 +29,7 @@ from condhint.numeric.evaluate import BudgetExceeded, Deadline, forward
 from condhint.numeric.formats import Format
 from condhint.numeric.reference import reference_values
 from condhint.once import once_with_budget
-from condhint.rewrites import dag, sym
+from condhint.rewrites import dag, laurent, sym
 from condhint.rewrites.context import Context
 from condhint.rewrites.verify import MIN_GAIN
 
@@ -115,9 +115,13 @@ def _series_terms(expr: Any, u: sp.Symbol, count: int) -> list[tuple[Fraction, i
 
 
 def _maclaurin(expr: Any, u: sp.Symbol, order: int) -> Any:
-    """The Maclaurin polynomial of `expr` below u**order: sympy's ring series where it gives one (a polynomial in
-    elementary functions of u: 0.1 s where `series` takes seconds, e.g. a polynomial in c and log(1 + c)
-    whose terms cancel up to c**7), else sympy's `series`."""
+    """The Maclaurin polynomial of `expr` below u**order: by truncated Laurent series (`laurent`, milliseconds,
+    where poles at 0 cancel), else sympy's ring series (a polynomial in elementary functions of u with other
+    symbols: 0.1 s where `series` takes seconds), else sympy's `series`."""
+    try:
+        return laurent.maclaurin(expr, u, order)
+    except laurent.NoSeries:
+        pass
     try:
         s = rs_series(expr, u, order).as_expr()
         if s.is_polynomial(u):
