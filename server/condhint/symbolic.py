@@ -92,13 +92,15 @@ def kappa_expression(expr: sp.Expr, symbols: dict[str, sp.Symbol]) -> sp.Expr:
 @lru_cache(maxsize=4096)  # equal terms recur across a package's formulas; sympy expressions hash by value
 def _shortest(q: sp.Expr) -> sp.Expr:
     """One term of κ in its shortest form: common factors pulled out and, when that is short enough to read,
-    `simplify` (not for a rational function, where `factor` does as well), or radicals out of the
-    denominator then factored (sqrt(n + 1) - sqrt(n) gives -sqrt(n)/(2*sqrt(n + 1)), which `simplify` alone
-    misses), whichever prints shortest."""
+    `simplify` (not for a rational function, where `factor` does as well), or `factor` (for a rational
+    function, or with radicals taken out of the denominator first: sqrt(n + 1) - sqrt(n) gives
+    -sqrt(n)/(2*sqrt(n + 1)), which `simplify` alone misses), whichever prints shortest."""
     t = sp.factor_terms(q)
     if len(sp.sstr(t)) <= SIMPLIFY_UP_TO:
-        shorter = [t] if q.is_rational_function() else [t, sp.simplify(q)]  # `factor` is as short there
-        shorter.append(sp.factor(sp.radsimp(q) if _has_radical(q) else q))  # no-op without one, yet slow
+        rational, radical = q.is_rational_function(), _has_radical(q)
+        shorter = [t] if rational else [t, sp.simplify(q)]
+        if rational or radical:  # otherwise `factor` was never shorter than `simplify` (211 terms of scipy.signal)
+            shorter.append(sp.factor(sp.radsimp(q) if radical else q))
         t = min(shorter, key=lambda e: len(sp.sstr(e)))
     return t
 
