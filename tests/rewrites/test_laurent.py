@@ -58,10 +58,25 @@ def test_cancellation_beyond_the_first_working_order_is_followed():
     (1 / x, "pole"),
     (sp.log(2 + x), "log of a value that is not 1"),
     (sp.exp(1 + x), "not 0 at 0"),
-    (sp.Float(0.5) * x, "Float"),
+    (sp.Float(0.5) * x, "inexact constant"),
+    (sp.sin(sp.pi * x) - sp.pi * x, "irrational"),
+    (sp.sqrt(3 + x), "irrational coefficient"),
     (x * sp.Symbol("y"), "more than one variable"),
     (sp.erf(x), "erf"),
 ])
 def test_refused_with_a_reason(expr, why):
     with pytest.raises(NoSeries, match=why):
         maclaurin(expr, x, 6)
+
+
+def test_the_search_falls_back_to_sympy_only_for_functions_it_lacks():
+    # A Bessel function (DLMF 10.2.2: J₀(x) = 1 − x²/4 + x⁴/64 − …) goes on to sympy's `series`; √(3 + x) has no
+    # Maclaurin polynomial with rational coefficients, which needs no second opinion (sympy's series of it
+    # takes most of a second).
+    from condhint.rewrites.laurent import Unsupported
+    from condhint.rewrites.search import _maclaurin
+
+    with pytest.raises(Unsupported):
+        maclaurin(sp.besselj(0, x), x, 6)
+    assert sp.expand(_maclaurin(sp.besselj(0, x), x, 6)) == 1 - x**2 / 4 + x**4 / 64
+    assert _maclaurin(1 - 96 * x + 24 * x * sp.sqrt(3 + 144 * x), x, 8) is None

@@ -4,7 +4,9 @@ For formulas whose terms have poles at 0 that cancel, such as 1 − (x/2)/tan(x/
 k = log(1 + x): sympy's ring series (`rs_series`) refuses to divide by a series that vanishes at 0, and
 `series` takes seconds there. Here every subexpression is x**v · p(x), with p a polynomial of sympy's ring
 series whose constant term is not zero, known below x**n; sympy's `rs_*` functions do the arithmetic on p.
-Only one variable and rational coefficients are handled; anything else raises `NoSeries`.
+Only one variable and rational coefficients are handled; anything else raises `NoSeries`. That is final
+(sympy's series would not give rational coefficients either, except where irrational constants cancel),
+but for `Unsupported` functions.
 """
 from __future__ import annotations
 
@@ -18,7 +20,12 @@ from sympy.polys.rings import ring
 
 
 class NoSeries(Exception):
-    """The expression has no Maclaurin series with rational coefficients this module can derive."""
+    """The expression has no Maclaurin polynomial with rational coefficients (a pole or branch point at 0, an
+    irrational or inexact constant, another variable)."""
+
+
+class Unsupported(NoSeries):
+    """A function this module has no series for: sympy's `series` may have one."""
 
 
 @dataclass(frozen=True)
@@ -85,6 +92,8 @@ def _series(e: sp.Expr, u: sp.Symbol, x: Any, n: int) -> Term:
         if e == 0:
             raise _Cancelled
         return Term(R(QQ(int(e.p), int(e.q))), 0, n)
+    if e.is_number:
+        raise NoSeries("an irrational or inexact constant")  # π, √3, 0.1 as a Float
     if e.is_Add:
         parts = [_series(a, u, x, n) for a in e.args]
         v = min(t.v for t in parts)
@@ -111,7 +120,7 @@ def _series(e: sp.Expr, u: sp.Symbol, x: Any, n: int) -> Term:
         if t.v < 1:
             raise NoSeries(f"{type(e).__name__} of a value that is not 0 at 0")
         return _normal(fn(t.p * x ** t.v, x, t.known_below), 0, t.known_below)
-    raise NoSeries(f"no series for {type(e).__name__}")
+    raise Unsupported(f"no series for {type(e).__name__}")
 
 
 def _power(t: Term, k: sp.Expr, x: Any) -> Term:

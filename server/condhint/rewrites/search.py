@@ -101,7 +101,7 @@ def _series_terms(expr: Any, u: sp.Symbol, count: int) -> list[tuple[Fraction, i
     order = count + 2
     for _ in range(6):
         s = _maclaurin(expr, u, order)
-        poly = sp.Poly(s, u) if s.is_polynomial(u) else None
+        poly = sp.Poly(s, u) if s is not None and s.is_polynomial(u) else None
         if poly is None:
             return None
         terms = [(c, k[0]) for k, c in zip(poly.monoms(), poly.coeffs())]
@@ -115,13 +115,15 @@ def _series_terms(expr: Any, u: sp.Symbol, count: int) -> list[tuple[Fraction, i
 
 
 def _maclaurin(expr: Any, u: sp.Symbol, order: int) -> Any:
-    """The Maclaurin polynomial of `expr` below u**order: by truncated Laurent series (`laurent`, milliseconds,
-    where poles at 0 cancel), else sympy's ring series (a polynomial in elementary functions of u with other
+    """The Maclaurin polynomial of `expr` below u**order (None: none with rational coefficients): by truncated
+    Laurent series (`laurent`, milliseconds, where poles at 0 cancel), else sympy's ring series (a polynomial in elementary functions of u with other
     symbols: 0.1 s where `series` takes seconds), else sympy's `series`."""
     try:
         return laurent.maclaurin(expr, u, order)
-    except laurent.NoSeries:
+    except laurent.Unsupported:
         pass
+    except laurent.NoSeries:
+        return None  # sympy's series takes seconds to find the same (and more where irrational constants cancel)
     try:
         s = rs_series(expr, u, order).as_expr()
         if s.is_polynomial(u):
