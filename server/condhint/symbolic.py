@@ -77,13 +77,23 @@ def to_sympy(root: Node, positive: set[str] | None = None) -> tuple[sp.Expr, dic
 
 
 SIMPLIFY_UP_TO = 160  # characters: `simplify` shortens small terms; on long ones it can run for minutes
+TERM_UP_TO = 1000  # characters of a cancelled term of κ: beyond, the formula is not one a reader can use
+
+
+class TooLong(ValueError):
+    """The κ formula would be too long to read."""
 
 
 def kappa_expression(expr: sp.Expr, symbols: dict[str, sp.Symbol]) -> sp.Expr:
-    """κ = Σᵢ |xᵢ ∂f/∂xᵢ / f|, each term cancelled and in its shortest form (`_shortest`)."""
+    """κ = Σᵢ |xᵢ ∂f/∂xᵢ / f|, each term cancelled and in its shortest form (`_shortest`); `TooLong` when a
+    cancelled term is longer than TERM_UP_TO characters (its shortest form, a sum of such terms, would be too)."""
     terms = []
     for s in symbols.values():
-        t = _shortest(sp.cancel(s * sp.diff(expr, s) / expr))
+        q = sp.cancel(s * sp.diff(expr, s) / expr)
+        size = len(sp.sstr(q))
+        if size > TERM_UP_TO:
+            raise TooLong(f"too long to read (a term of {size:,} characters)")
+        t = _shortest(q)
         if t != 0:
             terms.append(sp.Abs(t))
     return sp.Add(*terms) if terms else sp.Integer(0)

@@ -171,3 +171,25 @@ def test_a_term_shared_by_two_formulas_is_simplified_once_and_reads_the_same():
     hits = _shortest.cache_info().hits
     assert kappa_formula_text(g_site.root, {"x", "y"}) == alone == "sqrt(x)/(2*sqrt(x + 1)) + 1"
     assert _shortest.cache_info().hits > hits
+
+
+def test_a_formula_too_long_to_read_is_not_written():
+    # scipy.signal's smoothing-spline pole (`_coeff_smooth`, its statements as written there): κ of the radius
+    # has a cancelled term of about 1,500 characters, which no reader can use, and the finding keeps κ's
+    # value; the angle's formula is short and unaffected.
+    from condhint.engine import kappa_formula
+    from condhint.symbolic import TERM_UP_TO, TooLong, kappa_formula_text
+
+    src = ("import math\ndef pole(lam):  # condhint: 1e-6 <= lam <= 1e6\n"
+           "    xi = 1 - 96 * lam + 24 * lam * math.sqrt(3 + 144 * lam)\n"
+           "    omeg = math.atan2(math.sqrt(144 * lam - 1), math.sqrt(xi))\n"
+           "    rho = (24 * lam - 1 - math.sqrt(xi)) / (24 * lam)\n"
+           "    rho = rho * math.sqrt((48 * lam + 24 * lam * math.sqrt(3 + 144 * lam)) / xi)\n"
+           "    return rho, omeg\n")
+    sites = analyse_module(src, "t.py", Config(), cache=None).sites
+    radius = next(s for s in sites if s.root.text.startswith("rho"))
+    angle = next(s for s in sites if s.root.text.startswith("math.atan2"))
+    with pytest.raises(TooLong, match="too long to read"):
+        kappa_formula_text(radius.root, {"lam"})
+    assert kappa_formula(radius, Config()) is None
+    assert len(kappa_formula_text(angle.root, {"lam"})) < TERM_UP_TO
