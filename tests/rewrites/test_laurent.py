@@ -80,3 +80,8 @@ def test_the_search_falls_back_to_sympy_only_for_functions_it_lacks():
         maclaurin(sp.besselj(0, x), x, 6)
     assert sp.expand(_maclaurin(sp.besselj(0, x), x, 6)) == 1 - x**2 / 4 + x**4 / 64
     assert _maclaurin(1 - 96 * x + 24 * x * sp.sqrt(3 + 144 * x), x, 8) is None
+    # A variable exponent goes on too: (1 + x)**x = 1 + x² − x³/2 + 5x⁴/6 − … (mpmath.taylor at 50 digits)
+    poly = sp.Poly(_maclaurin((1 + x) ** x, x, 5), x)
+    with mpmath.workdps(50):
+        numeric = mpmath.taylor(lambda t: (1 + t) ** t, 0, 4)
+    assert all(abs(float(poly.coeff_monomial(x**k)) - float(numeric[k])) < 1e-25 for k in range(5))

@@ -124,6 +124,8 @@ def _series(e: sp.Expr, u: sp.Symbol, x: Any, n: int) -> Term:
 
 
 def _power(t: Term, k: sp.Expr, x: Any) -> Term:
+    if not k.is_number:
+        raise Unsupported("a power with a variable exponent")  # (1 + x)**x: sympy's series has it
     if k.is_Integer:
         return Term(rs.rs_pow(t.p, int(k), x, t.n), t.v * int(k), t.n)
     if not k.is_Rational or (t.v * k).is_Integer is False:
