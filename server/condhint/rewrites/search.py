@@ -116,8 +116,9 @@ def _series_terms(expr: Any, u: sp.Symbol, count: int) -> list[tuple[Fraction, i
 
 def _maclaurin(expr: Any, u: sp.Symbol, order: int) -> Any:
     """The Maclaurin polynomial of `expr` below u**order (None: none with rational coefficients): by truncated
-    Laurent series (`laurent`, milliseconds, where poles at 0 cancel), else sympy's ring series (a polynomial in elementary functions of u with other
-    symbols: 0.1 s where `series` takes seconds), else sympy's `series`."""
+    Laurent series (`laurent`, milliseconds, where poles at 0 cancel), else, for functions that lacks, sympy's
+    ring series (0.1 s where `series` takes seconds, e.g. a polynomial in c and log(1 + c) whose terms cancel
+    up to c**7), else sympy's `series`."""
     try:
         return laurent.maclaurin(expr, u, order)
     except laurent.Unsupported:
