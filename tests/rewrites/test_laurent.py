@@ -70,9 +70,9 @@ def test_refused_with_a_reason(expr, why):
 
 
 def test_the_search_falls_back_to_sympy_only_for_functions_it_lacks():
-    # A Bessel function (DLMF 10.2.2: J₀(x) = 1 − x²/4 + x⁴/64 − …) goes on to sympy's `series`; √(3 + x) has no
-    # Maclaurin polynomial with rational coefficients, which needs no second opinion (sympy's series of it
-    # takes most of a second).
+    # A Bessel function (DLMF 10.2.2: J₀(x) = 1 − x²/4 + x⁴/64 − …) goes on to sympy's `series`; √(3 + x)
+    # has no Maclaurin polynomial with rational coefficients, which needs no second opinion (sympy's series
+    # of it takes most of a second).
     from condhint.rewrites.laurent import Unsupported
     from condhint.rewrites.search import _maclaurin
 
