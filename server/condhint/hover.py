@@ -160,7 +160,7 @@ def markdown(facts: HoverFacts) -> str:
     elif facts.formula_state == "pending":
         out.append("- κ formula: being derived in the background (hover again)")
     elif facts.formula_state == "unavailable":
-        out.append("- κ formula: not available (sympy gave no result within the time budget)")
+        out.append("- κ formula: not available (sympy gave none within the time budget, or it is too long to read)")
     how = "" if facts.samples == facts.asked or not facts.asked else (
         f" ({facts.asked} asked for, with the ranges' corners, less points the guards exclude)")
     out += ["", f"_Estimates over {facts.samples} sampled inputs{how}, not guarantees._"]

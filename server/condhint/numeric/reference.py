@@ -34,16 +34,17 @@ def reference_values(nodes: list[Node], cols: dict[str, np.ndarray], m: int, dea
     # formula can need 640 digits where the others are settled at 80. Two precisions can agree because both
     # lose the same small term next to a large one (1 − e^−265 is 1 at 40 and at 80 digits): a sample settles
     # only at a precision that also spans the magnitudes of its values (`_span`).
-    dps, vals, prev, floor = 40, None, None, np.zeros(m)
+    dps, vals, prev = 40, None, None
     todo = np.arange(m)  # the samples not settled yet
-    split = True  # whether every node's values are per sample (so that samples can be taken apart)
+    split: bool  # whether every node's values are per sample (so that samples can be taken apart)
+    floor: np.ndarray  # per sample, the least precision at which it may settle
     while True:
         sub = cols if len(todo) == m else {k: v[todo] for k, v in cols.items()}
         with mpmath.workdps(dps):
             cur_vals = forward(nodes, sub, MP_BACKEND, len(todo), deadline)
         if vals is None:
             split = _by_sample(cur_vals, m)
-            floor = _span(nodes, cols, m) + AGREE_DIGITS if split else floor
+            floor = _span(nodes, cols, m) + AGREE_DIGITS if split else np.zeros(m)
         if vals is None or len(todo) == m:
             vals = cur_vals
         else:
